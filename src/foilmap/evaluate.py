@@ -1,0 +1,245 @@
+"""Full evaluation of a batch of sections: map, validity, flow, peak suction, moment, geometry
+and the recovery proxies, in one vectorised pass.
+
+This is the kernel a search calls once per generation; :func:`evaluate` returns one
+:class:`Evaluation` whose arrays all have shape (B,).  Invalid candidates get a status code and
+NaN figures; nothing here raises for a bad shape.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+import numpy as np
+
+from .boundary_layer import recovery_severity, stratford, thwaites
+from .conformal import (
+    DEFAULT_CRITICAL_MARGIN,
+    DEFAULT_SINGULAR_MARGIN,
+    CircleGrid,
+    SectionSet,
+    critical_points_inside,
+    map_at,
+    map_on_grid,
+    singular_point_check,
+)
+from .flow import (
+    flow_at_alpha,
+    flow_at_cl,
+    max_ideal_cl,
+    moment_quarter_chord,
+    peak_suction,
+    surface_speed,
+    zero_lift_angle,
+)
+from .geometry import chord_frame, geometry_status, section_geometry, split_surfaces
+from .status import Status
+from .surfaces import surfaces_from_stagnation
+
+__all__ = ["Evaluation", "evaluate", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
+
+#: circle-plane samples per section in searches (peak suction is refined beyond the grid)
+DEFAULT_POINTS = 256
+#: the proxies stop at this chord station: the ideal flow's stagnation at a finite-angle trailing
+#: edge is removed in real flow by the boundary layer's displacement (common practice in
+#: inviscid screening), and every gradient proxy diverges there
+DEFAULT_PROXY_END = 0.9
+#: proxy names accepted by :func:`evaluate`
+PROXIES = ("severity", "thwaites", "stratford")
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Figures of a batch of sections at one operating point, arrays of shape (B,).
+
+    Angles are in radians here (the CLI and files convert to degrees); lengths in chords;
+    Cm about the quarter chord, nose-up positive.  Proxy fields are NaN when not requested.
+    """
+
+    status: np.ndarray
+    cl: np.ndarray
+    alpha: np.ndarray
+    alpha_zero_lift: np.ndarray
+    lift_slope: np.ndarray
+    cl_max_ideal: np.ndarray
+    cm_quarter_chord: np.ndarray
+    cp_min: np.ndarray
+    cp_min_x: np.ndarray
+    cp_min_upper: np.ndarray  # True where the peak suction is on the upper surface
+    thickness: np.ndarray
+    thickness_x: np.ndarray
+    camber: np.ndarray
+    camber_x: np.ndarray
+    le_radius: np.ndarray
+    te_angle: np.ndarray
+    area: np.ndarray
+    severity: np.ndarray
+    thwaites_sep_x_upper: np.ndarray
+    thwaites_sep_x_lower: np.ndarray
+    thwaites_min_lambda: np.ndarray
+    stratford_margin: np.ndarray
+    stratford_sep_x_upper: np.ndarray
+    stratford_sep_x_lower: np.ndarray
+
+    def __len__(self) -> int:
+        return self.status.shape[0]
+
+    @property
+    def ok(self) -> np.ndarray:
+        return self.status == Status.OK
+
+    def row(self, i: int) -> dict:
+        """Figures of candidate ``i`` as a dict of Python scalars (NaN → None)."""
+        out = {}
+        for f in fields(self):
+            v = getattr(self, f.name)[i]
+            if f.name == "status":
+                out[f.name] = Status(int(v)).label
+            elif v.dtype == bool:
+                out[f.name] = bool(v)
+            else:
+                v = float(v)
+                out[f.name] = v if np.isfinite(v) else None
+        return out
+
+
+def _x_at(surface, s_query: np.ndarray) -> np.ndarray:
+    """Chord station at arc length ``s_query`` (B,) along a surface (NaN passes through)."""
+    nb = s_query.shape[0]
+    r = np.arange(nb)
+    j = np.argmax(surface.mask & (surface.s >= s_query[:, None]), axis=1)
+    jm = np.where(surface.mask[r, np.maximum(j - 1, 0)] & (j > 0), j - 1, j)
+    s0, s1 = surface.s[r, jm], surface.s[r, j]
+    x0, x1 = surface.x[r, jm], surface.x[r, j]
+    with np.errstate(all="ignore"):
+        frac = np.where(s1 > s0, (s_query - s0) / (s1 - s0), 0.0)
+    return np.where(np.isfinite(s_query), x0 + frac * (x1 - x0), np.nan)
+
+
+def evaluate(
+    sections: SectionSet,
+    *,
+    cl=None,
+    alpha=None,
+    points: int = DEFAULT_POINTS,
+    proxies: tuple[str, ...] = ("severity",),
+    reynolds: float | None = None,
+    proxy_end: float = DEFAULT_PROXY_END,
+    critical_margin: float = DEFAULT_CRITICAL_MARGIN,
+    singular_margin: float = DEFAULT_SINGULAR_MARGIN,
+) -> Evaluation:
+    """Evaluate a batch of sections at a target Cl or at an angle of attack.
+
+    Parameters
+    ----------
+    sections : SectionSet
+        B candidates with N coefficients each.
+    cl : float or ndarray (B,), optional
+        Target lift coefficient, met exactly by the closed-form angle.
+    alpha : float or ndarray (B,), optional
+        Angle of attack to the chord line in radians (exactly one of ``cl`` and ``alpha``).
+    points : int
+        Circle-plane samples per section.
+    proxies : tuple of str
+        Recovery proxies to compute, from :data:`PROXIES`; ``stratford`` needs ``reynolds``.
+    reynolds : float, optional
+        Chord Reynolds number for Stratford's criterion.
+    proxy_end : float
+        Chord station where the proxies stop (see :data:`DEFAULT_PROXY_END`).
+    critical_margin, singular_margin : float
+        δ₁ and δ₂ of the validity checks (DESIGN.md §1).
+    """
+    if (cl is None) == (alpha is None):
+        raise ValueError("give exactly one of cl and alpha")
+    unknown = set(proxies) - set(PROXIES)
+    if unknown:
+        raise ValueError(f"unknown proxies {sorted(unknown)}; allowed: {', '.join(PROXIES)}")
+    if "stratford" in proxies and reynolds is None:
+        raise ValueError("the stratford proxy needs a Reynolds number")
+    nb = len(sections)
+    grid = CircleGrid.get(points, max(sections.n_coefficients, 1))
+    with np.errstate(all="ignore"):
+        status = np.where(
+            critical_points_inside(sections.coefficients, 1.0 - critical_margin),
+            Status.OK,
+            Status.CRITICAL_POINT,
+        ).astype(np.int8)
+        mv = map_on_grid(sections, grid)
+        sp_status, _ = singular_point_check(sections, mv, grid, singular_margin)
+        status = np.where(status == Status.OK, sp_status, status).astype(np.int8)
+        frame = chord_frame(sections, mv, grid)
+        zc = frame.to_chord(mv.z)
+        split = split_surfaces(zc, grid.phi, frame.phi_le)
+        geom = section_geometry(sections, mv, grid, frame, split, zc=zc)
+        g_status = geometry_status(split, geom)
+        status = np.where(status == Status.OK, g_status, status).astype(np.int8)
+        flow = flow_at_cl(sections, frame, cl) if cl is not None else flow_at_alpha(
+            sections, frame, alpha
+        )
+        status = np.where(status == Status.OK, flow.status, status).astype(np.int8)
+        q = surface_speed(flow, mv, grid)
+        q_pk, phi_pk = peak_suction(sections, flow, q, grid)
+        zpk = frame.to_chord(map_at(sections, np.exp(1j * phi_pk)[:, None]).z)[:, 0]
+        cm = moment_quarter_chord(sections, frame, flow)
+        nan = np.full(nb, np.nan)
+        severity = nan.copy()
+        th_up, th_lo, th_min = nan.copy(), nan.copy(), nan.copy()
+        st_m, st_up, st_lo = nan.copy(), nan.copy(), nan.copy()
+        if proxies:
+            upper, lower = surfaces_from_stagnation(flow, mv, grid, frame, q)
+            if "severity" in proxies:
+                severity = np.maximum(
+                    *(recovery_severity(sf.s, sf.u, sf.du_ds, sf.until(proxy_end))
+                      for sf in (upper, lower))
+                )
+            if "thwaites" in proxies:
+                tu, tl = (
+                    thwaites(sf.s, sf.u, sf.du_ds, sf.until(proxy_end), sf.integral0)
+                    for sf in (upper, lower)
+                )
+                th_up = _x_at(upper, tu.separation_s)
+                th_lo = _x_at(lower, tl.separation_s)
+                th_min = np.fmin(tu.min_lambda, tl.min_lambda)
+            if "stratford" in proxies:
+                su, sl = (
+                    stratford(sf.s, sf.u, sf.du_ds, sf.until(proxy_end), float(reynolds))
+                    for sf in (upper, lower)
+                )
+                st_m = np.fmax(su.margin, sl.margin)
+                st_up = _x_at(upper, su.separation_s)
+                st_lo = _x_at(lower, sl.separation_s)
+        cp_min = 1.0 - q_pk**2
+        values = dict(
+            cl=flow.cl,
+            alpha=flow.alpha,
+            alpha_zero_lift=zero_lift_angle(sections, frame),
+            lift_slope=flow.lift_slope,
+            cl_max_ideal=max_ideal_cl(sections, frame),
+            cm_quarter_chord=cm,
+            cp_min=cp_min,
+            cp_min_x=zpk.real,
+            thickness=geom.thickness,
+            thickness_x=geom.thickness_x,
+            camber=geom.camber,
+            camber_x=geom.camber_x,
+            le_radius=geom.le_radius,
+            te_angle=sections.te_angle.copy(),
+            area=geom.area,
+            severity=severity,
+            thwaites_sep_x_upper=th_up,
+            thwaites_sep_x_lower=th_lo,
+            thwaites_min_lambda=th_min,
+            stratford_margin=st_m,
+            stratford_sep_x_upper=st_up,
+            stratford_sep_x_lower=st_lo,
+        )
+        core = ("cl", "alpha", "cm_quarter_chord", "cp_min", "thickness", "le_radius")
+        finite = np.all([np.isfinite(values[n]) for n in core], axis=0)
+        status = np.where((status == Status.OK) & ~finite, Status.NON_FINITE, status)
+        bad = status != Status.OK
+        for name, v in values.items():
+            v = np.array(v, dtype=float)
+            v[bad] = np.nan
+            values[name] = v
+    upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
+    return Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
