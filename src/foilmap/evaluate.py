@@ -32,11 +32,25 @@ from .flow import (
     surface_speed,
     zero_lift_angle,
 )
-from .geometry import chord_frame, geometry_status, section_geometry, split_surfaces
+from .flow import FlowState
+from .geometry import (
+    ChordFrame,
+    SurfaceSplit,
+    chord_frame,
+    coordinates,
+    geometry_status,
+    section_geometry,
+    split_surfaces,
+)
 from .status import Status
 from .surfaces import surfaces_from_stagnation
 
-__all__ = ["Evaluation", "evaluate", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
+__all__ = [
+    "Evaluation",
+    "Analysis",
+    "evaluate",
+    "analyse",
+    "surface_distribution", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
 
 #: circle-plane samples per section in searches (peak suction is refined beyond the grid)
 DEFAULT_POINTS = 256
@@ -116,7 +130,26 @@ def _x_at(surface, s_query: np.ndarray) -> np.ndarray:
     return np.where(np.isfinite(s_query), x0 + frac * (x1 - x0), np.nan)
 
 
-def evaluate(
+def evaluate(sections: SectionSet, **kwargs) -> Evaluation:
+    """Evaluate a batch of sections at a target Cl or at an angle of attack.
+
+    Keyword arguments as :func:`analyse`; returns only the figures.
+    """
+    return analyse(sections, **kwargs).evaluation
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """An evaluation together with the state it was computed from, for tables and plots."""
+
+    sections: SectionSet
+    evaluation: Evaluation
+    frame: ChordFrame
+    flow: FlowState
+    split: SurfaceSplit
+
+
+def analyse(
     sections: SectionSet,
     *,
     cl=None,
@@ -127,7 +160,7 @@ def evaluate(
     proxy_end: float = DEFAULT_PROXY_END,
     critical_margin: float = DEFAULT_CRITICAL_MARGIN,
     singular_margin: float = DEFAULT_SINGULAR_MARGIN,
-) -> Evaluation:
+) -> Analysis:
     """Evaluate a batch of sections at a target Cl or at an angle of attack.
 
     Parameters
@@ -242,4 +275,28 @@ def evaluate(
             v[bad] = np.nan
             values[name] = v
     upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
-    return Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
+    ev = Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
+    return Analysis(sections, ev, frame, flow, split)
+
+
+def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "cosine"):
+    """Surface points with their speed ratio, from the TE over the upper surface and back.
+
+    Returns ``(zc, upper, q)``, shapes (B, points): chord-frame points (as in
+    :func:`~foilmap.geometry.coordinates`), True on the upper surface, and q = V/V∞
+    (Cp = 1 − q²).  At the trailing edge q is 0 for a finite angle (a stagnation point) and the
+    common limit of both surfaces for a cusp.
+    """
+    sec, frame, flow = analysis.sections, analysis.frame, analysis.flow
+    zc, phi = coordinates(sec, frame, analysis.split, points, spacing, return_phi=True)
+    te = np.zeros_like(phi, dtype=bool)
+    te[:, 0] = te[:, -1] = True
+    cusp = sec.te_angle[:, None] == 0.0
+    phi_eval = np.where(te, np.where(np.arange(points)[None, :] == 0, 1e-6, -1e-6), phi)
+    m = map_at(sec, np.exp(1j * phi_eval))
+    ap = flow.alpha_circle[:, None]
+    w_abs = 2.0 * flow.speed[:, None] * np.abs(np.sin(phi_eval - ap) + np.sin(ap))
+    q = w_abs / np.abs(m.dz)
+    q = np.where(te & ~cusp, 0.0, q)
+    upper = phi <= frame.phi_le[:, None]  # the LE row counts as upper
+    return zc, upper, q

@@ -110,6 +110,7 @@ def exact_points_at_x(
     keys: np.ndarray,
     iterations: int = 3,
     slopes: bool = False,
+    return_phi: bool = False,
 ):
     """Exact chord-frame contour points at the keys (−x upper, +x lower), shape (B, M).
 
@@ -129,6 +130,8 @@ def exact_points_at_x(
         phi = phi - np.where(np.isfinite(step), np.clip(step, -0.1, 0.1), 0.0)
         m = map_at(sections, np.exp(1j * phi))
     zc = frame.to_chord(m.z)
+    if return_phi:
+        return zc, phi
     if not slopes:
         return zc
     dzc = m.zeta * m.dz * frame.scale[:, None]  # ∝ tangent (the factor i is applied below)
@@ -269,7 +272,8 @@ def coordinates(
     split: SurfaceSplit,
     points: int,
     spacing: str = "cosine",
-) -> np.ndarray:
+    return_phi: bool = False,
+):
     """Chord-frame coordinates from the TE over the upper surface to the LE and back.
 
     Parameters
@@ -283,15 +287,15 @@ def coordinates(
 
     Returns
     -------
-    ndarray of complex, shape (B, points): x + i y.
+    ndarray of complex, shape (B, points): x + i y; with ``return_phi`` also the circle angles.
     """
     nb = len(sections)
     if spacing == "map":
-        phi = np.linspace(0.0, 2.0 * np.pi, points)[None, 1:-1].repeat(nb, axis=0)
+        phi = np.linspace(0.0, 2.0 * np.pi, points)[None, :].repeat(nb, axis=0)
         zc = np.empty((nb, points), dtype=complex)
-        zc[:, 1:-1] = frame.to_chord(map_at(sections, np.exp(1j * phi)).z)
+        zc[:, 1:-1] = frame.to_chord(map_at(sections, np.exp(1j * phi[:, 1:-1])).z)
         zc[:, 0] = zc[:, -1] = 1.0
-        return zc
+        return (zc, phi) if return_phi else zc
     if spacing != "cosine":
         raise ValueError(f"spacing must be 'cosine' or 'map', not {spacing!r}")
     m_up = (points + 2) // 2  # points per surface including LE and TE
@@ -299,7 +303,7 @@ def coordinates(
     xu = 0.5 * (1.0 - np.cos(np.linspace(0.0, np.pi, m_up)))[1:-1]
     xl = 0.5 * (1.0 - np.cos(np.linspace(0.0, np.pi, m_lo)))[1:-1]
     keys = np.concatenate([-xu[::-1], xl])  # upper TE→LE, then lower LE→TE
-    zc = exact_points_at_x(sections, frame, split, keys)
+    zc, phi_in = exact_points_at_x(sections, frame, split, keys, return_phi=True)
     n_up = m_up - 2
     out = np.empty((nb, points), dtype=complex)
     out[:, 0] = 1.0
@@ -307,4 +311,11 @@ def coordinates(
     out[:, 1 + n_up] = 0.0
     out[:, 2 + n_up : -1] = zc[:, n_up:]
     out[:, -1] = 1.0
-    return out
+    if not return_phi:
+        return out
+    phi = np.empty((nb, points))
+    phi[:, 0], phi[:, -1] = 0.0, 2.0 * np.pi
+    phi[:, 1 : 1 + n_up] = phi_in[:, :n_up]
+    phi[:, 1 + n_up] = frame.phi_le
+    phi[:, 2 + n_up : -1] = phi_in[:, n_up:]
+    return out, phi

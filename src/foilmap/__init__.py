@@ -1,0 +1,44 @@
+"""foilmap: aerofoil and hydrofoil sections by generalised conformal maps, with exact ideal flow.
+
+Public names
+------------
+SectionSet
+    A batch of sections (shape-series coefficients and trailing-edge angles).
+evaluate, analyse, Evaluation
+    The vectorised evaluation kernel and its result.
+Status
+    Status codes of an evaluation (invalid shapes are a status, never an exception).
+load_section, format_section
+    Section files.
+offset_circle_coefficients
+    The classic Joukowski / Kármán–Trefftz offset circle as a shape series.
+
+Ideal-flow results are screening results: a section that carries loads or people must be checked
+by viscous analysis and physical tests; local codes and licensed engineering practice govern.
+"""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+from .conformal import SectionSet, offset_circle_coefficients
+from .errors import InputError
+from .evaluate import Analysis, Evaluation, analyse, evaluate, surface_distribution
+from .sectionfile import SectionRecord, format_section, load_section
+from .status import Status
+
+__all__ = [
+    "__version__",
+    "SectionSet",
+    "offset_circle_coefficients",
+    "Evaluation",
+    "Analysis",
+    "evaluate",
+    "analyse",
+    "surface_distribution",
+    "Status",
+    "InputError",
+    "SectionRecord",
+    "load_section",
+    "format_section",
+]

@@ -1,0 +1,219 @@
+"""The ``foilmap`` command: a table of subcommands, each parsing its arguments, calling the
+library and returning an exit code (0 done, 2 bad input)."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+
+__all__ = ["main"]
+
+EXIT_OK = 0
+EXIT_INPUT = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with errors on one line (no usage block) and exit code 2."""
+
+    def error(self, message: str):  # noqa: D102 - argparse hook
+        raise InputError(f"{self.prog}: {message}")
+
+
+def _finite(kind: str, lo: float | None = None, hi: float | None = None, open_lo=False):
+    def parse(text: str) -> float:
+        try:
+            v = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        bad = not math.isfinite(v)
+        bad |= lo is not None and (v <= lo if open_lo else v < lo)
+        bad |= hi is not None and v > hi
+        if bad:
+            lo_s = "" if lo is None else (f"> {lo:g}" if open_lo else f">= {lo:g}")
+            hi_s = "" if hi is None else f"<= {hi:g}"
+            allowed = " and ".join(s for s in (lo_s, hi_s) if s) or "finite"
+            raise argparse.ArgumentTypeError(f"{kind} {text!r} is out of range (allowed: {allowed})")
+        return v
+
+    return parse
+
+
+def _int_range(kind: str, lo: int, hi: int):
+    def parse(text: str) -> int:
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if not lo <= v <= hi:
+            raise argparse.ArgumentTypeError(f"{kind} {v} is out of range (allowed: {lo} to {hi})")
+        return v
+
+    return parse
+
+
+def _add_operating_point(p: argparse.ArgumentParser) -> None:
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG",
+                   help="angle of attack to the chord line, degrees")
+    g.add_argument("--cl", type=_finite("lift coefficient", -20.0, 20.0), metavar="CL",
+                   help="target lift coefficient (met exactly by the closed-form angle)")
+    p.add_argument("--points", type=_int_range("points", 32, 65536), default=256,
+                   help="circle-plane samples (default 256; peak suction is refined beyond them)")
+
+
+def _analyse(args, proxies=("severity",)):
+    from .evaluate import analyse
+    from .sectionfile import load_section
+
+    rec = load_section(args.section)
+    kw = {"cl": args.cl} if args.cl is not None else {"alpha": math.radians(args.alpha)}
+    re = getattr(args, "re", None)
+    if re is not None and "stratford" not in proxies:
+        proxies = tuple(proxies) + ("stratford",)
+    an = analyse(rec.to_set(), points=args.points, proxies=proxies, reynolds=re,
+                 proxy_end=getattr(args, "proxy_end", 0.9), **kw)
+    return rec, an
+
+
+def _check_ok(rec, an) -> None:
+    from .status import Status, describe
+
+    st = int(an.evaluation.status[0])
+    if st != Status.OK:
+        raise InputError(f"section {rec.name!r} is not usable: {describe(st)} "
+                         f"(status {Status(st).label})")
+
+
+def cmd_evaluate(args) -> int:
+    from .report import evaluation_record, format_summary, surface_table_csv
+    from .sectionfile import write_text_atomic
+    from .status import Status
+
+    proxies = ("severity", "thwaites")
+    rec, an = _analyse(args, proxies)
+    record = evaluation_record(an.evaluation, 0, rec.name)
+    ok = int(an.evaluation.status[0]) == Status.OK
+    if args.json:
+        print(json.dumps(record, indent=2))
+        if not ok:
+            print(f"foilmap evaluate: section {rec.name!r}: {record['status_text']}",
+                  file=sys.stderr)
+            return EXIT_INPUT
+    else:
+        _check_ok(rec, an)
+        used = proxies + (("stratford",) if args.re is not None else ())
+        print(format_summary(record, used))
+    if args.table:
+        from .evaluate import surface_distribution
+
+        zc, upper, q = surface_distribution(an, args.table_points, "cosine")
+        write_text_atomic(args.table, surface_table_csv(zc[0], upper[0], q[0], rec.name))
+        if not args.json:
+            print(f"surface distribution written to {args.table}")
+    return EXIT_OK
+
+
+def cmd_coords(args) -> int:
+    from .evaluate import analyse
+    from .geometry import coordinates
+    from .report import coordinates_text
+    from .sectionfile import load_section, write_text_atomic
+
+    rec = load_section(args.section)
+    sec = rec.to_set()
+    an = analyse(sec, alpha=0.0, proxies=())
+    _check_ok(rec, an)
+    zc = coordinates(sec, an.frame, an.split, args.points, args.spacing)[0]
+    text = coordinates_text(zc, rec.name)
+    if args.output:
+        write_text_atomic(args.output, text)
+        print(f"{args.points} points written to {args.output}")
+    else:
+        sys.stdout.write(text)
+    return EXIT_OK
+
+
+def cmd_plot(args) -> int:
+    from .plotting import plot_section
+
+    rec, an = _analyse(args)
+    _check_ok(rec, an)
+    out = Path(args.output)
+    if out.suffix.lower() != ".png":
+        raise InputError(f"plot: output {str(out)!r} must end in .png")
+    if not out.parent.exists():
+        raise InputError(f"plot: folder {str(out.parent)!r} does not exist")
+    tmp = out.with_name(f".{out.stem}.part.png")
+    try:
+        plot_section(an, tmp, rec.name)
+        tmp.replace(out)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    print(f"plot written to {out}")
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="foilmap", description=(
+        "Search and evaluate aerofoil and hydrofoil sections by generalised conformal maps. "
+        "Ideal-flow screening: check chosen sections by viscous analysis and tests."))
+    p.add_argument("--version", action="version", version=f"foilmap {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser, metavar="COMMAND")
+
+    e = sub.add_parser("evaluate", help="figures of a section at an angle or a target Cl")
+    e.add_argument("section", help="section file (TOML)")
+    _add_operating_point(e)
+    e.add_argument("--re", type=_finite("Reynolds number", 0.0, 1e10, open_lo=True),
+                   metavar="RE", help="chord Reynolds number: adds Stratford's turbulent criterion")
+    e.add_argument("--proxy-end", type=_finite("proxy end station", 0.0, 1.0, open_lo=True),
+                   default=0.9, metavar="X", help="chord station where the recovery proxies stop")
+    e.add_argument("--json", action="store_true", help="print one JSON object")
+    e.add_argument("--table", metavar="FILE.csv", help="also write x, y, surface, cp, q per point")
+    e.add_argument("--table-points", type=_int_range("table points", 5, 100001), default=161,
+                   metavar="N", help="points in the --table file (default 161, cosine spacing)")
+    e.set_defaults(func=cmd_evaluate)
+
+    c = sub.add_parser("coords", help="write coordinates (two columns, TE-upper-LE-lower-TE)")
+    c.add_argument("section", help="section file (TOML)")
+    c.add_argument("-n", "--points", type=_int_range("points", 5, 100001), default=161,
+                   help="number of points (default 161)")
+    c.add_argument("--spacing", choices=("cosine", "map"), default="cosine",
+                   help="cosine in x on each surface, or uniform in circle angle (the map's own)")
+    c.add_argument("-o", "--output", metavar="FILE", help="output file (default: standard output)")
+    c.set_defaults(func=cmd_coords)
+
+    pl = sub.add_parser("plot", help="PNG of the section, its streamlines and its Cp")
+    pl.add_argument("section", help="section file (TOML)")
+    _add_operating_point(pl)
+    pl.add_argument("-o", "--output", required=True, metavar="FILE.png", help="output PNG")
+    pl.set_defaults(func=cmd_plot)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    try:
+        args = build_parser().parse_args(argv)
+        return args.func(args)
+    except InputError as exc:
+        msg = str(exc)
+        if not msg.startswith("foilmap"):
+            msg = f"foilmap: {msg}"
+        print(msg.splitlines()[0] if msg else "foilmap: bad input", file=sys.stderr)
+        return EXIT_INPUT
+    except BrokenPipeError:  # output piped into a pager or head that closed early
+        sys.stderr.close()
+        return EXIT_OK
+    except KeyboardInterrupt:
+        print("foilmap: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,91 @@
+"""Figures: the section with its streamlines and its Cp distribution.
+
+matplotlib is imported here only, with the non-interactive Agg back end.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+
+import numpy as np
+
+from .conformal import map_at
+from .evaluate import Analysis, surface_distribution
+from .report import CAUTION
+
+__all__ = ["streamfunction_grid", "plot_section"]
+
+
+def streamfunction_grid(analysis: Analysis, i: int = 0, radial: int = 90, angular: int = 361,
+                        extent: float = 3.0):
+    """Stream function on a polar grid of the circle plane, mapped to the chord frame.
+
+    ψ = Im W(ζ), W = U (e^{−iα'} ζ + e^{iα'}/ζ) + iΓ/(2π) log ζ, so the body is ψ = 0 and
+    ψ = U Im(e^{−iα'}ζ + e^{iα'}/ζ) + Γ/(2π) ln|ζ|: single-valued, exact.  Radii are
+    geometrically spaced from 1 to ``extent`` so that the grid is fine near the body.
+
+    Returns ``(x, y, psi)``, each of shape (radial, angular), in chords.
+    """
+    sec = analysis.sections[i]
+    fl, fr = analysis.flow, analysis.frame
+    r = np.geomspace(1.0, extent, radial)
+    phi = np.linspace(0.0, 2.0 * np.pi, angular)
+    zeta = (r[:, None] * np.exp(1j * phi[None, :])).ravel()
+    zeta = np.where(np.abs(zeta - 1.0) < 1e-12, 1.0 + 1e-9, zeta)  # avoid the TE itself
+    z = map_at(sec, zeta[None, :]).z[0]
+    zc = (z - fr.z_le[i]) * fr.scale[i]
+    ap, u, gam = fl.alpha_circle[i], fl.speed[i], fl.circulation[i]
+    w = u * (np.exp(-1j * ap) * zeta + np.exp(1j * ap) / zeta)
+    psi = w.imag + gam / (2.0 * np.pi) * np.log(np.abs(zeta))
+    shape = (radial, angular)
+    return zc.real.reshape(shape), zc.imag.reshape(shape), psi.reshape(shape)
+
+
+def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "section",
+                 i: int = 0, points: int = 241) -> None:
+    """Write a PNG: Cp along the chord (axis inverted) above the section in its streamlines."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    ev = analysis.evaluation
+    zc, upper, q = surface_distribution(analysis, points, "cosine")
+    zc, upper, q = zc[i], upper[i], q[i]
+    cp = 1.0 - q * q
+    fig, (ax_cp, ax_sec) = plt.subplots(
+        2, 1, figsize=(8.0, 8.2), gridspec_kw={"height_ratios": [1.05, 1.0]}, sharex=True
+    )
+    ax_cp.plot(zc.real[upper], cp[upper], color="#b03a2e", lw=1.8, label="upper surface")
+    ax_cp.plot(zc.real[~upper], cp[~upper], color="#1f618d", lw=1.8, label="lower surface")
+    ax_cp.axhline(0.0, color="0.6", lw=0.7)
+    ax_cp.invert_yaxis()
+    ax_cp.set_ylabel("Cp")
+    ax_cp.grid(True, color="0.9")
+    ax_cp.legend(loc="lower right", frameon=False)
+    cl, alpha = ev.cl[i], math.degrees(ev.alpha[i])
+    ax_cp.set_title(
+        f"{name}:  Cl = {cl:.3f} at {alpha:.2f}°,  Cp min = {ev.cp_min[i]:.3f} "
+        f"at x/c = {ev.cp_min_x[i]:.3f},  Cm c/4 = {ev.cm_quarter_chord[i]:.4f}",
+        fontsize=10,
+    )
+    x, y, psi = streamfunction_grid(analysis, i)
+    span = np.nanpercentile(np.abs(psi), 60)
+    levels = np.linspace(-span, span, 31)
+    ax_sec.contour(x, y, psi, levels=levels, colors="#7f8c8d", linewidths=0.6, linestyles="solid")
+    ax_sec.fill(zc.real, zc.imag, color="#d5d8dc", ec="#17202a", lw=1.2)
+    ax_sec.set_aspect("equal")
+    ax_sec.set_xlim(-0.3, 1.3)
+    ax_sec.set_ylim(-0.45, 0.45)
+    ax_sec.set_xlabel("x / chord")
+    ax_sec.set_ylabel("y / chord")
+    ax_sec.set_title(
+        f"t/c = {ev.thickness[i]:.4f} at {ev.thickness_x[i]:.3f},  "
+        f"camber = {ev.camber[i]:.4f} at {ev.camber_x[i]:.3f}; streamlines of the exact flow",
+        fontsize=9,
+    )
+    fig.text(0.5, 0.01, CAUTION, ha="center", va="bottom", fontsize=6.5, wrap=True, color="0.3")
+    fig.tight_layout(rect=(0, 0.04, 1, 1))
+    fig.savefig(path, dpi=130)
+    plt.close(fig)
