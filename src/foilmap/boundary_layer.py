@@ -116,8 +116,14 @@ def thwaites(
     u = np.atleast_2d(u)
     du_ds = np.atleast_2d(du_ds)
     mask = np.ones(u.shape, dtype=bool) if mask is None else mask
-    u5 = np.where(mask, u, 0.0) ** (THWAITES_B - 1.0)
-    integral = _cumtrapz(u5, s, mask) + np.reshape(integral0, (-1, 1))
+    # ∫ u⁵ ds with u linear between points: Δs (u₀⁵ + u₀⁴u₁ + … + u₁⁵)/6, exact for the
+    # u ∝ s of a stagnation point where the trapezoidal rule is poor
+    um = np.where(mask, u, 0.0)
+    u0, u1 = um[:, :-1], um[:, 1:]
+    poly = u0**5 + u0**4 * u1 + u0**3 * u1**2 + u0**2 * u1**3 + u0 * u1**4 + u1**5
+    inc = np.where(mask[:, 1:] & mask[:, :-1], poly * np.diff(s, axis=1) / 6.0, 0.0)
+    integral = np.concatenate([np.zeros((u.shape[0], 1)), np.cumsum(inc, axis=1)], axis=1)
+    integral += np.reshape(integral0, (-1, 1))
     with np.errstate(all="ignore"):
         theta2 = THWAITES_A * integral / u ** THWAITES_B
         lam = theta2 * du_ds

@@ -290,8 +290,8 @@ def singular_point_check(
     Inside-ness is the parity of the crossings of the ray from −1 to −∞ (the winding number);
     the branch cut is crossed when the near-circle meets the real axis inside (−1, 1) other than
     at the trailing edge.  The distance from −1 to the near-circle is the grid minimum, refined to
-    1e-11 in circle angle for every row whose sampled distance is within twice the margin (the
-    sampled minimum exceeds the true one by O(h²|g''|), far below the margin elsewhere).
+    1e-11 in circle angle for every row where the sampled distance, less 0.6 of the local sample
+    spacing, falls below the margin (elsewhere the curve cannot come nearer between samples).
 
     Returns ``(status, distance)``: OK, SINGULAR_POINT or BRANCH_CUT per row, and the distance.
     """
@@ -301,7 +301,12 @@ def singular_point_check(
     d = np.abs(g + 1.0)
     j = np.argmin(d, axis=1)
     dist = d[np.arange(d.shape[0]), j]
-    near = np.flatnonzero(dist < 2.0 * margin)
+    # every point of the curve is within about half a sample spacing of a sample, so the true
+    # distance is at least min(d_j − 0.6 s_j), s_j the larger spacing next to sample j
+    gap = np.abs(np.diff(g, axis=1, append=g[:, :1]))
+    gap = np.maximum(gap, np.roll(gap, 1, axis=1))
+    bound = np.min(d - 0.6 * gap, axis=1)
+    near = np.flatnonzero(bound < margin)
     if near.size:
         sub = sections[near]
 

@@ -155,7 +155,7 @@ def format_section(
 ) -> str:
     """Text of a section file (coefficients to full double precision)."""
     c = np.asarray(coefficients, dtype=complex).ravel()
-    pairs = ",\n    ".join(f"[{a.real!r}, {a.imag!r}]" for a in c)
+    pairs = ",\n    ".join(f"[{float(a.real)!r}, {float(a.imag)!r}]" for a in c)
     lines = [
         "# foilmap section (ideal-flow screening result: a section that carries loads or",
         "# people must be checked by viscous analysis and tests; local codes govern)",

@@ -1,0 +1,130 @@
+"""The command line end to end, through real subprocesses."""
+
+from __future__ import annotations
+
+import csv
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from foilmap import analyse, load_section
+
+SECTION = """
+[section]
+name = "cli-test"
+te_angle_deg = 10.0
+coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
+"""
+JSON_KEYS = {"cl", "alpha_deg", "alpha_zero_lift_deg", "cm_quarter_chord", "cp_min", "cp_min_x",
+             "thickness", "thickness_x", "camber", "camber_x", "le_radius", "te_angle_deg",
+             "area", "status"}
+
+
+def run(*args, cwd=None):
+    return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
+                          capture_output=True, text=True, cwd=cwd, timeout=120)
+
+
+@pytest.fixture
+def section_file(tmp_path):
+    p = tmp_path / "sec.toml"
+    p.write_text(SECTION)
+    return p
+
+
+def test_evaluate_json_and_table(section_file, tmp_path):
+    table = tmp_path / "cp.csv"
+    r = run("evaluate", section_file, "--cl", "0.5", "--json", "--table", table)
+    assert r.returncode == 0, r.stderr
+    rec = json.loads(r.stdout)
+    assert JSON_KEYS <= rec.keys()
+    assert rec["status"] == "ok" and rec["cl"] == pytest.approx(0.5, abs=1e-12)
+    assert rec["te_angle_deg"] == pytest.approx(10.0)
+    rows = list(csv.reader(line for line in table.read_text().splitlines()
+                           if not line.startswith("#")))
+    assert rows[0] == ["x", "y", "surface", "cp", "q"]
+    surface = [r[2] for r in rows[1:]]
+    cp, q = (np.array([float(r[i]) for r in rows[1:]]) for i in (3, 4))
+    assert len(rows) - 1 == 161
+    assert surface[1] == "upper" and surface[-2] == "lower"
+    np.testing.assert_allclose(cp, 1 - q**2, atol=1e-9)
+    assert cp.min() == pytest.approx(rec["cp_min"], abs=2e-3)  # the table is sampled
+    assert "screening" in table.read_text().splitlines()[2]
+
+
+def test_evaluate_human_table(section_file):
+    r = run("evaluate", section_file, "--alpha", "3", "--re", "2e6")
+    assert r.returncode == 0, r.stderr
+    assert "Stratford margin" in r.stdout and "Cm c/4" in r.stdout
+    assert "viscous analysis" in r.stdout
+
+
+def test_coords_layout(section_file, tmp_path):
+    out = tmp_path / "c.dat"
+    r = run("coords", section_file, "-n", "81", "-o", out)
+    assert r.returncode == 0, r.stderr
+    lines = out.read_text().splitlines()
+    assert lines[0].startswith("cli-test")
+    xy = np.loadtxt(lines[1:])
+    assert xy.shape == (81, 2)
+    assert tuple(xy[0]) == (1.0, 0.0) and tuple(xy[-1]) == (1.0, 0.0)
+    le = np.argmin(xy[:, 0])
+    assert xy[le, 0] == 0.0 and np.all(xy[1:le, 1] > 0) and np.all(xy[le + 1 : -1, 1] < 0)
+    # the written points re-evaluate on the section (independent check through the panel peer
+    # lives in test_panel_peer)
+    rec = load_section(section_file)
+    an = analyse(rec.to_set(), alpha=0.0)
+    assert an.evaluation.thickness[0] == pytest.approx(
+        (np.interp(0.3, xy[le::-1, 0], xy[le::-1, 1]) - np.interp(0.3, xy[le:, 0], xy[le:, 1])),
+        abs=0.01,
+    )
+
+
+def test_plot_writes_png(section_file, tmp_path):
+    out = tmp_path / "p.png"
+    r = run("plot", section_file, "--cl", "0.6", "-o", out)
+    assert r.returncode == 0, r.stderr
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+@pytest.mark.parametrize(
+    "args,message",
+    [
+        (["evaluate", "{sec}"], "one of the arguments --alpha --cl is required"),
+        (["evaluate", "{sec}", "--alpha", "95"], "angle of attack '95' is out of range"),
+        (["evaluate", "{sec}", "--cl", "abc"], "'abc' is not a number"),
+        (["evaluate", "{sec}", "--cl", "0.5", "--points", "7"], "points 7 is out of range"),
+        (["evaluate", "{missing}", "--cl", "0.5"], "cannot read section file"),
+        (["evaluate", "{bad}", "--cl", "0.5"], "'section.te_angle_deg' = 99.0 is not allowed"),
+        (["evaluate", "{sec}", "--cl", "40"], "lift coefficient '40' is out of range"),
+        (["evaluate", "{sec}", "--cl", "15"], "above the section's maximum ideal lift"),
+        (["coords", "{sec}", "-n", "2"], "points 2 is out of range"),
+        (["coords", "{sec}", "--spacing", "random"], "invalid choice: 'random'"),
+        (["plot", "{sec}", "--cl", "0.5", "-o", "{tmp}/x.jpg"], "must end in .png"),
+        (["plot", "{sec}", "--cl", "0.5", "-o", "{tmp}/no/x.png"], "does not exist"),
+        (["frobnicate"], "invalid choice: 'frobnicate'"),
+    ],
+)
+def test_bad_input_one_line_exit_2(section_file, tmp_path, args, message):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(SECTION.replace("10.0", "99.0"))
+    subs = {"sec": section_file, "missing": tmp_path / "none.toml", "bad": bad, "tmp": tmp_path}
+    r = run(*[a.format(**subs) for a in args])
+    assert r.returncode == 2
+    err = r.stderr.strip().splitlines()
+    assert len(err) == 1, r.stderr
+    assert message in err[0]
+    assert "Traceback" not in r.stderr
+    assert not (tmp_path / "x.jpg").exists()
+
+
+def test_invalid_shape_is_one_line(tmp_path):
+    p = tmp_path / "thin.toml"
+    p.write_text(SECTION.replace("[-0.075, 0.038]", "[-0.001, 0.0]"))
+    r = run("evaluate", p, "--alpha", "0")
+    assert r.returncode == 2
+    assert len(r.stderr.strip().splitlines()) == 1
+    assert "not usable" in r.stderr
