@@ -145,6 +145,28 @@ class MapValues:
     q2: np.ndarray
 
 
+def _power(w: np.ndarray, k: np.ndarray) -> np.ndarray:
+    """Principal branch of w^k for real k, through real arithmetic.
+
+    |w|^k e^{ik arg w} with arg in (−π, π]: the same branch as exp(k log w), and about three
+    times faster in numpy than the complex logarithm and exponential.
+    """
+    x, y = w.real, w.imag
+    mod = x * x
+    mod += y * y
+    np.log(mod, out=mod)
+    mod *= 0.5 * k
+    np.exp(mod, out=mod)  # |w|^k
+    ang = np.arctan2(y, x)
+    ang *= k
+    out = np.empty_like(w)
+    np.cos(ang, out=out.real)
+    np.sin(ang, out=out.imag)
+    out.real *= mod
+    out.imag *= mod
+    return out
+
+
 def _compose(zeta, a0, s, h, h2, k) -> MapValues:
     """Evaluate both stages from the series sums.
 
@@ -158,10 +180,7 @@ def _compose(zeta, a0, s, h, h2, k) -> MapValues:
     dg = e * one_m_h  # g' = (g/ζ)(1 − Σ n Aₙ ζ⁻ⁿ)
     gm1 = g - 1.0
     gp1 = g + 1.0
-    w = gm1 / gp1
-    r = np.log(w, out=w)
-    r *= k
-    r = np.exp(r, out=r)  # r = ((z₁ − 1)/(z₁ + 1))^k, principal branch
+    r = _power(gm1 / gp1, k)  # r = ((z₁ − 1)/(z₁ + 1))^k, principal branch
     inv_1mr = 1.0 / (1.0 - r)
     z = (1.0 + r) * inv_1mr
     z *= k  # z = k (1 + r)/(1 − r)

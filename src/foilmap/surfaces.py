@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .conformal import CircleGrid, MapValues
-from .flow import FlowState, speed_log_derivative
+from .flow import FlowState
 from .geometry import ChordFrame
 
 __all__ = ["Surface", "surfaces_from_stagnation"]
@@ -76,7 +76,13 @@ def surfaces_from_stagnation(
     arc_s = arc[r, j0] + frac * (arc[r, j0 + 1] - arc[r, j0])
     lower_mask = grid.phi[None, :] > phi_s[:, None]
     s_signed = arc - arc_s[:, None]
-    dlnq = speed_log_derivative(grid.phi[None, :], flow.alpha_circle[:, None], mv.q2)
+    # d ln q/dφ = cos(φ − α')/(sin(φ − α') + sin α') + Im(ζz''/z'), by angle addition on the
+    # grid's own cos φ and sin φ
+    ca = np.cos(flow.alpha_circle)[:, None]
+    sa = np.sin(flow.alpha_circle)[:, None]
+    with np.errstate(all="ignore"):
+        dlnq = (grid.cos * ca + grid.sin * sa) / (grid.sin * ca - grid.cos * sa + sa)
+    dlnq += mv.q2.imag
     grad = q * dlnq / ds_dphi  # dq/ds along increasing φ
     zc = frame.to_chord(mv.z)
     x, y = zc.real, zc.imag
