@@ -253,11 +253,16 @@ def map_at(sections: SectionSet, zeta: np.ndarray) -> MapValues:
     zeta = np.asarray(zeta, dtype=complex)
     nb, n = sections.coefficients.shape
     # ζ⁻ⁿ by repeated multiplication (an integer complex power is far slower)
-    inv = np.broadcast_to((1.0 / zeta)[..., None], zeta.shape + (n,))
-    inv_pow = np.cumprod(inv, axis=-1)  # (B, M, N)
-    w = _weighted(sections.coefficients).reshape(3, nb, n)
-    sums = np.einsum("bmn,kbn->kbm", inv_pow, w)
-    return _compose(zeta, sections.a0[:, None], sums[0], sums[1], sums[2], sections.k[:, None])
+    inv = 1.0 / zeta
+    inv_pow = np.empty(zeta.shape + (n,), dtype=complex)  # (B, M, N)
+    inv_pow[..., 0] = inv
+    for j in range(1, n):
+        np.multiply(inv_pow[..., j - 1], inv, out=inv_pow[..., j])
+    w = _weighted(sections.coefficients).reshape(3, nb, n).transpose(1, 2, 0)  # (B, N, 3)
+    sums = np.matmul(inv_pow, w)  # (B, M, 3)
+    return _compose(
+        zeta, sections.a0[:, None], sums[..., 0], sums[..., 1], sums[..., 2], sections.k[:, None]
+    )
 
 
 def critical_points_inside(coefficients: np.ndarray, radius: float) -> np.ndarray:
