@@ -160,6 +160,133 @@ def cmd_plot(args) -> int:
     return EXIT_OK
 
 
+def _progress(study, budget):
+    from .progress import Progress
+
+    runs = study.runs()
+    total = sum(budget or r.search["max_evaluations"] for r in runs)
+    return Progress(total_runs=len(runs), total_evals=total)
+
+
+def _run_folder(study, out: Path, workers, budget) -> int:
+    from .engine import run_study
+
+    prog = _progress(study, budget)
+    summaries = run_study(study, out, workers=workers, budget=budget, progress=prog)
+    failed = [s for s in summaries if s.get("state") != "complete"]
+    print(f"study {study.name}: {len(summaries) - len(failed)} runs finished now, "
+          f"{len(failed)} failed; logs in {out / 'runs'}")
+    for s in failed:
+        print(f"  run {s['run']} failed: {s.get('error', 'unknown error')}")
+    return EXIT_OK if not failed else 1
+
+
+def cmd_run(args) -> int:
+    from .study import load_study
+
+    study = load_study(args.study)
+    out = Path(args.out) if args.out else Path("results") / study.name
+    return _run_folder(study, out, args.workers, args.budget)
+
+
+def cmd_resume(args) -> int:
+    from .engine import load_folder
+
+    out = Path(args.folder)
+    study = load_folder(out)
+    return _run_folder(study, out, args.workers, None)
+
+
+def cmd_status(args) -> int:
+    from .studyreport import folder_status, format_status
+
+    st = folder_status(Path(args.folder))
+    print(json.dumps(st, indent=1) if args.json else format_status(st))
+    return EXIT_OK
+
+
+def cmd_best(args) -> int:
+    from .report import CAUTION
+    from .sectionfile import format_section, write_text_atomic
+    from .studyreport import best_design
+
+    b, run, study = best_design(Path(args.folder), args.run)
+    prov = {"study": study.name, "run": run.run_id, "log": b["log"], "evaluation": b["index"],
+            "generation": b["generation"], "objective": b["f"], "design_cl": run.point.cl}
+    text = format_section(f"{study.name}-{run.run_id}", b["coefficients"], b["te_angle_deg"], prov)
+    write_text_atomic(args.output, text)
+    print(f"best feasible design of {run.run_id} (objective {b['f']:.6g}, evaluation "
+          f"{b['index']}) written to {args.output}")
+    print(CAUTION)
+    return EXIT_OK
+
+
+def cmd_plot_run(args) -> int:
+    from .studyreport import plot_runs
+
+    out = Path(args.output)
+    if out.suffix.lower() != ".png":
+        raise InputError(f"plot-run: output {str(out)!r} must end in .png")
+    if not out.parent.exists():
+        raise InputError(f"plot-run: folder {str(out.parent)!r} does not exist")
+    tmp = out.with_name(f".{out.stem}.part.png")
+    try:
+        plot_runs(Path(args.folder), tmp)
+        tmp.replace(out)
+    finally:
+        if tmp.exists():
+            tmp.unlink()
+    print(f"plot written to {out}")
+    return EXIT_OK
+
+
+def cmd_demo(args) -> int:
+    import shutil
+    from importlib.resources import files
+
+    from .study import parse_study
+    from .studyreport import best_design, plot_runs
+
+    text = files("foilmap").joinpath("data/demo.toml").read_text(encoding="utf-8")
+    study = parse_study(text, "foilmap demo")
+    out = Path(args.out)
+    if out.exists():
+        shutil.rmtree(out)  # the demo folder is the demo's own: start afresh
+    out.mkdir(parents=True)
+    (out / "demo-study.toml").write_text(text, encoding="utf-8")
+    t0 = __import__("time").time()
+    code = _run_folder(study, out, args.workers, None)
+    plot_runs(out, out / "convergence.png")
+    from .evaluate import analyse
+    from .plotting import plot_section
+    from .sectionfile import format_section, write_text_atomic
+
+    b, run, _ = best_design(out)
+    write_text_atomic(out / "best-section.toml", format_section(
+        f"demo-{run.run_id}", b["coefficients"], b["te_angle_deg"],
+        {"study": "demo", "run": run.run_id, "evaluation": b["index"], "objective": b["f"],
+         "design_cl": run.point.cl}))
+    an = analyse(SectionSet_from(b), cl=run.point.cl, proxies=("severity",))
+    plot_section(an, out / "best-section.png", f"demo best ({run.run_id})")
+    took = __import__("time").time() - t0
+    print(f"demo finished in {took:.0f} s: best feasible objective {b['f']:.5f} "
+          f"(run {run.run_id})")
+    for name in ("demo-study.toml", "runs", "index.json", "convergence.png", "best-section.toml",
+                 "best-section.png"):
+        print(f"  {out / name}")
+    print("Next: foilmap status " + str(out) + "   |   foilmap evaluate "
+          + str(out / "best-section.toml") + " --cl 0.5")
+    return code
+
+
+def SectionSet_from(b):
+    import numpy as np
+
+    from .conformal import SectionSet
+
+    return SectionSet(np.asarray(b["coefficients"])[None, :], np.radians([b["te_angle_deg"]]))
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="foilmap", description=(
         "Search and evaluate aerofoil and hydrofoil sections by generalised conformal maps. "
@@ -194,6 +321,42 @@ def build_parser() -> argparse.ArgumentParser:
     _add_operating_point(pl)
     pl.add_argument("-o", "--output", required=True, metavar="FILE.png", help="output PNG")
     pl.set_defaults(func=cmd_plot)
+
+    workers_t = _int_range("workers", 1, 1024)
+    r = sub.add_parser("run", help="run a study: every run logged to HDF5")
+    r.add_argument("study", help="study file (TOML), see docs/study-file.md")
+    r.add_argument("--out", metavar="DIR", help="study folder (default results/STUDY-NAME)")
+    r.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
+    r.add_argument("--budget", type=_int_range("budget", 10, 10**9), metavar="EVALS",
+                   help="evaluation budget of each run, replacing the study's")
+    r.set_defaults(func=cmd_run)
+
+    rs = sub.add_parser("resume", help="finish the unfinished runs of a study folder")
+    rs.add_argument("folder", help="study folder")
+    rs.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
+    rs.set_defaults(func=cmd_resume)
+
+    s_ = sub.add_parser("status", help="progress of every run of a study folder (also live)")
+    s_.add_argument("folder", help="study folder")
+    s_.add_argument("--json", action="store_true", help="print one JSON object")
+    s_.set_defaults(func=cmd_status)
+
+    b = sub.add_parser("best", help="the best feasible design as a section file")
+    b.add_argument("folder", help="study folder")
+    b.add_argument("--run", metavar="ID", help="one run's best (default: the whole study's)")
+    b.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
+    b.set_defaults(func=cmd_best)
+
+    pr = sub.add_parser("plot-run", help="PNG: convergence of every run and the best sections")
+    pr.add_argument("folder", help="study folder")
+    pr.add_argument("-o", "--output", required=True, metavar="FILE.png")
+    pr.set_defaults(func=cmd_plot_run)
+
+    d = sub.add_parser("demo", help="a small real study on built-in defaults (under 2 minutes)")
+    d.add_argument("--out", default=str(Path("results") / "demo"), metavar="DIR",
+                   help="output folder (default results/demo; replaced on every demo)")
+    d.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
+    d.set_defaults(func=cmd_demo)
     return p
 
 

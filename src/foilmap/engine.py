@@ -1,0 +1,292 @@
+"""Running studies: one run = one search writing its own log; runs in parallel worker processes.
+
+Layout of a study folder::
+
+    DIR/study.toml        the study text verbatim (what ``foilmap resume DIR`` runs)
+    DIR/options.json      command-line overrides that change results (the budget)
+    DIR/index.json        the study index: one entry per run (file, seed, point, variant, state)
+    DIR/runs/ID.h5        the run logs (docs/run-log.md)
+    DIR/runs/ID.resume    the resume checkpoint of an unfinished run (removed when it completes)
+
+Re-running a study skips complete runs and resumes unfinished ones from their checkpoints.
+"""
+
+from __future__ import annotations
+
+import json
+import multiprocessing as mp
+import os
+import signal
+import time
+import traceback
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+from .objectives import Problem
+from .runlog import (
+    STATE_COMPLETE,
+    RunLogWriter,
+    load_checkpoint,
+    read_run,
+    save_checkpoint,
+)
+from .sectionfile import write_text_atomic
+from .study import RunSpec, Study, parse_study
+
+__all__ = ["execute_run", "run_study", "prepare_folder", "load_folder", "run_paths",
+           "INDEX_NAME", "STUDY_NAME"]
+
+INDEX_NAME = "index.json"
+STUDY_NAME = "study.toml"
+OPTIONS_NAME = "options.json"
+_QUEUE = None  # progress queue of a worker process
+
+
+def run_paths(out: Path, run_id: str) -> tuple[Path, Path]:
+    return out / "runs" / f"{run_id}.h5", out / "runs" / f"{run_id}.resume"
+
+
+def _summary(run: RunSpec, log_path: Path) -> dict:
+    log = read_run(log_path)
+    best = log.best()
+    return {"run": run.run_id, "state": log.state_name, "generations": log.generations,
+            "evaluations": log.evaluations, "best": None if best is None else best["f"],
+            "resumes": log.resumes}
+
+
+def execute_run(study: Study, run: RunSpec, out: Path, report=None) -> dict:
+    """Run (or resume, or skip if complete) one run of a study; returns a summary.
+
+    ``report``, if given, is called with a progress dict after every generation.
+    """
+    from .search import is_finished, new_search, step
+
+    out = Path(out)
+    log_path, ckpt_path = run_paths(out, run.run_id)
+    log_path.parent.mkdir(parents=True, exist_ok=True)
+    problem = Problem.from_run(study, run)
+    if log_path.exists():
+        try:
+            if read_run(log_path).state == STATE_COMPLETE:
+                return _summary(run, log_path)
+        except (OSError, KeyError, ValueError):
+            pass  # unreadable (killed before its first flush): start again
+    if log_path.exists() and ckpt_path.exists():
+        state = load_checkpoint(ckpt_path)
+        writer = RunLogWriter.reopen(log_path, state.generation)
+        state.elapsed = float(read_run(log_path).gen["time"][-1]) if state.generation else 0.0
+        state.started = time.time()
+    else:
+        for p in (log_path, ckpt_path):
+            if p.exists():
+                p.unlink()
+        state = new_search(problem, run.search, run.seed)
+        attrs = {
+            "software": f"foilmap {__version__}",
+            "study_name": study.name,
+            "run_id": run.run_id,
+            "seed": run.seed,
+            "started": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
+            "point": {"name": run.point.name, "cl": run.point.cl,
+                      "cl_range": run.point.cl_range, "reynolds": run.point.reynolds},
+            "variant": run.variant,
+            "shape": run.shape,
+            "search": run.search,
+            "objectives": dict(study.objectives),
+            "constraints": study.constraints,
+            "variable_names": _variable_names(problem),
+            "caution": ("Ideal-flow screening results: a section that carries loads or people "
+                        "must be checked by viscous analysis and physical tests; local codes "
+                        "and licensed engineering practice govern."),
+        }
+        writer = RunLogWriter.create(
+            log_path, attrs=attrs, study_text=study.text, dimension=problem.param.dimension,
+            objective_names=problem.objective_names, constraint_names=problem.constraint_names,
+            chunk_rows=state.base_popsize)
+        save_checkpoint(ckpt_path, state)
+    with writer:
+        while not is_finished(state):
+            gen, _ = step(state, problem, run.search)
+            writer.append(gen)  # write and flush the generation first ...
+            save_checkpoint(ckpt_path, state)  # ... then the checkpoint, atomically
+            if report is not None:
+                report({"run": run.run_id, "generation": gen.generation,
+                        "evaluations": gen.evaluations, "best": gen.best_f,
+                        "feasible": gen.feasible_fraction, "sigma": gen.sigma})
+        writer.finish(STATE_COMPLETE)
+    ckpt_path.unlink(missing_ok=True)
+    return _summary(run, log_path)
+
+
+def _variable_names(problem: Problem) -> list[str]:
+    names = []
+    for n in range(1, problem.param.n + 1):
+        names += [f"re_A{n}", f"im_A{n}"]
+    if problem.param.tau_free:
+        names.append("te_angle_unit")
+    return names
+
+
+# --- the study folder and its index ------------------------------------------------------------
+
+
+def prepare_folder(study: Study, out: Path, budget: int | None) -> Study:
+    """Create or check the study folder; returns the study as it is to be run."""
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    sfile = out / STUDY_NAME
+    if sfile.exists():
+        if sfile.read_text(encoding="utf-8") != study.text:
+            raise InputError(f"folder {str(out)!r} holds a different study ({STUDY_NAME} differs); "
+                             "choose another --out or remove the folder")
+        old = _read_options(out)
+        if budget is not None and old.get("budget") not in (None, budget):
+            raise InputError(f"folder {str(out)!r} was started with --budget {old['budget']}; "
+                             f"resume it with the same budget or choose another --out")
+        budget = old.get("budget", budget)
+    else:
+        write_text_atomic(sfile, study.text)
+    write_text_atomic(out / OPTIONS_NAME, json.dumps({"budget": budget}))
+    (out / "runs").mkdir(exist_ok=True)
+    return study.with_budget(budget) if budget is not None else study
+
+
+def _read_options(out: Path) -> dict:
+    p = out / OPTIONS_NAME
+    return json.loads(p.read_text()) if p.exists() else {}
+
+
+def load_folder(out: Path) -> Study:
+    """The study of an existing folder, with its recorded overrides."""
+    out = Path(out)
+    sfile = out / STUDY_NAME
+    if not sfile.exists():
+        raise InputError(f"{str(out)!r} is not a study folder (no {STUDY_NAME})")
+    study = parse_study(sfile.read_text(encoding="utf-8"), str(sfile))
+    budget = _read_options(out).get("budget")
+    return study.with_budget(budget) if budget is not None else study
+
+
+def write_index(study: Study, out: Path, states: dict[str, dict]) -> None:
+    runs = []
+    for r in study.runs():
+        entry = {"run": r.run_id, "file": f"runs/{r.run_id}.h5", "seed": r.seed,
+                 "point": r.point.name, "variant": r.variant}
+        entry.update(states.get(r.run_id, {"state": "pending"}))
+        runs.append(entry)
+    index = {"schema_version": "1.0", "software": f"foilmap {__version__}",
+             "study": study.name, "updated": time.strftime("%Y-%m-%dT%H:%M:%S%z"), "runs": runs}
+    write_text_atomic(Path(out) / INDEX_NAME, json.dumps(index, indent=1))
+
+
+# --- the local process pool --------------------------------------------------------------------
+
+
+def _init_worker(queue) -> None:
+    global _QUEUE
+    _QUEUE = queue
+    # a batch scheduler's SIGTERM closes files cleanly through SystemExit
+    signal.signal(signal.SIGTERM, lambda *_: (_ for _ in ()).throw(SystemExit(143)))
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
+
+
+def _worker(text: str, source: str, budget, run_id: str, out: str) -> dict:
+    study = parse_study(text, source)
+    if budget is not None:
+        study = study.with_budget(budget)
+    run = next(r for r in study.runs() if r.run_id == run_id)
+    q = _QUEUE
+    report = (lambda m: q.put(m)) if q is not None else None
+    try:
+        return execute_run(study, run, Path(out), report)
+    except Exception as exc:  # a failing run is recorded, the study goes on
+        return {"run": run_id, "state": "failed", "error": f"{type(exc).__name__}: {exc}",
+                "trace": traceback.format_exc(limit=5)}
+
+
+def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
+              progress=None) -> list[dict]:
+    """Run every unfinished run of a study in ``workers`` processes; returns the summaries."""
+    out = Path(out)
+    study = prepare_folder(study, out, budget)
+    budget = _read_options(out).get("budget")
+    runs = study.runs()
+    workers = max(1, min(workers or os.cpu_count() or 1, len(runs)))
+    states: dict[str, dict] = {}
+    todo = []
+    for r in runs:
+        log_path, _ = run_paths(out, r.run_id)
+        try:
+            if log_path.exists() and read_run(log_path).state == STATE_COMPLETE:
+                s = _summary(r, log_path)
+                states[r.run_id] = {k: s[k] for k in ("state", "evaluations", "best")}
+                continue
+        except (OSError, KeyError, ValueError):
+            pass
+        todo.append(r)
+    write_index(study, out, states)
+    if progress is not None:
+        progress.total_runs = len(runs)
+        progress.done = len(runs) - len(todo)
+    summaries = []
+    if not todo:
+        return summaries
+    # kernels single-threaded in workers: parallelism is across runs, and bits do not depend on
+    # how many BLAS threads a machine offers
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ[var] = "1"
+    ctx = mp.get_context("spawn")
+    queue = ctx.Queue()
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker,
+                               initargs=(queue,))
+    try:
+        futures = {pool.submit(_worker, study.text, study.source, budget, r.run_id, str(out)): r
+                   for r in todo}
+        for r in todo:
+            states[r.run_id] = {"state": "queued"}
+        pending = set(futures)
+        while pending:
+            done, pending = wait(pending, timeout=0.5, return_when=FIRST_COMPLETED)
+            _drain(queue, progress, states)
+            for fut in done:
+                r = futures[fut]
+                try:
+                    s = fut.result()
+                except Exception as exc:  # the worker process itself died
+                    s = {"run": r.run_id, "state": "failed", "error": f"{type(exc).__name__}: {exc}"}
+                summaries.append(s)
+                states[r.run_id] = {k: s.get(k) for k in ("state", "evaluations", "best", "error")
+                                    if s.get(k) is not None}
+                if progress is not None:
+                    progress.run_ended(r.run_id, s["state"], s.get("best"), s.get("error"))
+                write_index(study, out, states)
+        _drain(queue, progress, states)
+    except BaseException:
+        for r_id, st in states.items():
+            if st.get("state") in ("queued", "running"):
+                st["state"] = "interrupted"
+        pool.shutdown(wait=False, cancel_futures=True)
+        for p in list(getattr(pool, "_processes", {}).values()):
+            p.terminate()  # SIGTERM: workers close their logs through SystemExit
+        write_index(study, out, states)
+        raise
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+        if progress is not None:
+            progress.close()
+    write_index(study, out, states)
+    return summaries
+
+
+def _drain(queue, progress, states) -> None:
+    while True:
+        try:
+            msg = queue.get_nowait()
+        except Exception:
+            return
+        states.setdefault(msg["run"], {})["state"] = "running"
+        if progress is not None:
+            progress.update(msg)
+

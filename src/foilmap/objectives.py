@@ -1,0 +1,180 @@
+"""A study's problem: objectives and constraints of a batch of search vectors.
+
+Constraints are in the form g ≤ 0 (feasible), one column each.  Candidates whose shape the map
+cannot represent, or that cannot reach a lift coefficient of the point, get their status code
+and a penalty instead of figures (:meth:`Problem.penalise`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .evaluate import analyse, evaluate
+from .geometry import thickness_at
+from .status import Status
+from .study import Parametrisation, Point, RunSpec, Study
+
+__all__ = ["Problem", "Outcome", "INVALID_CONSTRAINT"]
+
+#: constraint value given to every constraint of a candidate with an invalid shape
+INVALID_CONSTRAINT = 1.0
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """Figures of one generation, shapes (B,) or (B, K)/(B, C)."""
+
+    f: np.ndarray  # weighted objective (penalised where invalid)
+    objectives: np.ndarray  # (B, K) raw objective values (NaN where invalid)
+    constraints: np.ndarray  # (B, C) g ≤ 0 feasible
+    status: np.ndarray  # (B,) int8
+    feasible: np.ndarray  # (B,) bool: valid and every g ≤ 0
+
+
+@dataclass(frozen=True)
+class Problem:
+    """The objectives and constraints of one run."""
+
+    param: Parametrisation
+    point: Point
+    objectives: tuple[tuple[str, float], ...]
+    constraints: dict
+    points: int
+    proxy_end: float
+
+    @classmethod
+    def from_run(cls, study: Study, run: RunSpec) -> "Problem":
+        return cls(Parametrisation.from_shape(run.shape), run.point,
+                   tuple(study.objectives.items()), dict(study.constraints),
+                   run.search["points"], run.search["proxy_end"])
+
+    @property
+    def objective_names(self) -> list[str]:
+        return [n for n, _ in self.objectives]
+
+    @property
+    def constraint_scales(self) -> np.ndarray:
+        """Typical size of each constraint, by which the search sees it divided (so that every
+        g is of order one for the augmented Lagrangian); the logs keep physical values."""
+        scale = {"min_thickness": 0.01, "max_thickness": 0.01, "thickness_x_low": 0.05,
+                 "thickness_x_high": 0.05, "min_le_radius": 0.002,
+                 "min_te_angle": math.radians(1.0), "cm_low": 0.01, "cm_high": 0.01,
+                 "max_peak_suction": 0.1}
+        return np.array([scale.get(n, 0.005) for n in self.constraint_names])
+
+    @property
+    def constraint_names(self) -> list[str]:
+        c = self.constraints
+        names = []
+        if "min_thickness" in c:
+            names.append("min_thickness")
+        if "max_thickness" in c:
+            names.append("max_thickness")
+        if "thickness_x" in c:
+            names += ["thickness_x_low", "thickness_x_high"]
+        if "min_le_radius" in c:
+            names.append("min_le_radius")
+        if "min_te_angle_deg" in c:
+            names.append("min_te_angle")
+        if "cm" in c:
+            names += ["cm_low", "cm_high"]
+        for x, _ in c.get("min_thickness_at", []):
+            names.append(f"thickness_at_{x:g}")
+        if "max_peak_suction" in c:
+            names.append("max_peak_suction")
+        return names
+
+    def _proxies(self) -> tuple[str, ...]:
+        names = self.objective_names
+        p = []
+        if "severity" in names:
+            p.append("severity")
+        if "laminar_deficit" in names:
+            p.append("thwaites")
+        if "stratford_margin" in names:
+            p.append("stratford")
+        return tuple(p)
+
+    def evaluate(self, y: np.ndarray) -> Outcome:
+        """Objectives and constraints of the search vectors ``y`` (B, D)."""
+        sec = self.param.sections(y)
+        proxies = self._proxies()
+        an = analyse(sec, cl=self.point.cl, points=self.points, proxies=proxies,
+                     reynolds=self.point.reynolds, proxy_end=self.proxy_end)
+        ev = an.evaluation
+        status = ev.status.copy()
+        peak = -ev.cp_min
+        for cl in self.point.cls[1:]:
+            other = evaluate(sec, cl=cl, points=self.points, proxies=())
+            status = np.where(status == Status.OK, other.status, status).astype(np.int8)
+            peak = np.fmax(peak, -other.cp_min)
+        values = {
+            "peak_suction": peak,
+            "severity": ev.severity,
+            "stratford_margin": ev.stratford_margin,
+            "laminar_deficit": 1.0 - np.where(np.isnan(ev.thwaites_sep_x_upper),
+                                              self.proxy_end, ev.thwaites_sep_x_upper),
+            "cm_magnitude": np.abs(ev.cm_quarter_chord),
+            "area": ev.area,
+        }
+        obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
+        weights = np.array([w for _, w in self.objectives])
+        f = obj @ weights
+        g = self._constraints(ev, an, peak)
+        finite = np.isfinite(f) & np.all(np.isfinite(g), axis=1)
+        status = np.where((status == Status.OK) & ~finite, Status.NON_FINITE, status)
+        status = status.astype(np.int8)
+        ok = status == Status.OK
+        obj[~ok] = np.nan
+        f, g = self.penalise(f, g, ok)
+        feasible = ok & (np.all(g <= 0.0, axis=1) if g.shape[1] else True)
+        return Outcome(f, obj, g, status, feasible)
+
+    def _constraints(self, ev, an, peak) -> np.ndarray:
+        c = self.constraints
+        cols = []
+        if "min_thickness" in c:
+            cols.append(c["min_thickness"] - ev.thickness)
+        if "max_thickness" in c:
+            cols.append(ev.thickness - c["max_thickness"])
+        if "thickness_x" in c:
+            lo, hi = c["thickness_x"]
+            cols += [lo - ev.thickness_x, ev.thickness_x - hi]
+        if "min_le_radius" in c:
+            cols.append(c["min_le_radius"] - ev.le_radius)
+        if "min_te_angle_deg" in c:
+            cols.append(math.radians(c["min_te_angle_deg"]) - ev.te_angle)
+        if "cm" in c:
+            lo, hi = c["cm"]
+            cols += [lo - ev.cm_quarter_chord, ev.cm_quarter_chord - hi]
+        stations = c.get("min_thickness_at", [])
+        if stations:
+            xs = np.array([x for x, _ in stations])
+            need = np.array([t for _, t in stations])
+            yu, yl = thickness_at(an.split, xs)
+            cols += list((need[None, :] - (yu - yl)).T)
+        if "max_peak_suction" in c:
+            cols.append(peak - c["max_peak_suction"])
+        nb = ev.status.shape[0]
+        return np.stack(cols, axis=1) if cols else np.zeros((nb, 0))
+
+    @staticmethod
+    def penalise(f: np.ndarray, g: np.ndarray, ok: np.ndarray):
+        """Penalty for invalid candidates: worse than every valid one of the generation.
+
+        f = w + 1 + |w| with w the largest valid f of the generation (CMA-ES uses ranks only),
+        and every constraint value is :data:`INVALID_CONSTRAINT`; with no valid candidate at all
+        f = 1000.  Deterministic: it depends only on the generation.
+        """
+        f = f.copy()
+        g = g.copy()
+        if np.any(ok):
+            worst = float(np.max(f[ok]))
+            f[~ok] = worst + 1.0 + abs(worst)
+        else:
+            f[:] = 1000.0
+        g[~ok] = INVALID_CONSTRAINT
+        return f, g

@@ -1,0 +1,429 @@
+"""Study files: a declarative design study, validated once at load.
+
+A study names the parametrisation, the operating points, the objectives, the constraints, the
+search method and its budget, and the seeds.  It expands into independent runs
+(seeds × operating points × variants).  Every key, its unit, default and allowed range is in
+:data:`SCHEMA`, which ``docs/study-file.md`` documents (a test keeps the two in step).
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from .errors import InputError
+
+__all__ = [
+    "SCHEMA",
+    "OBJECTIVES",
+    "Study",
+    "Point",
+    "RunSpec",
+    "Parametrisation",
+    "load_study",
+    "parse_study",
+]
+
+#: objective names a study may minimise, with their meaning (all at the design point unless said)
+OBJECTIVES = {
+    "peak_suction": "-Cp_min, the largest over the design Cl and the ends of any Cl range",
+    "severity": "largest -(s/u) du/ds over the pressure recovery (Reynolds-free)",
+    "stratford_margin": "Stratford's turbulent separation margin (needs reynolds; >= 1 separates)",
+    "laminar_deficit": "1 - x/c of Thwaites laminar separation on the upper surface",
+    "cm_magnitude": "|Cm| about the quarter chord",
+    "area": "cross-section area in chord^2",
+}
+
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+
+
+# --- a tiny schema: (type check, default, description) per key --------------------------------
+
+
+@dataclass(frozen=True)
+class Key:
+    kind: str  # "int", "float", "str", "range", "pairs", "ints", "choice", "bool", "names"
+    default: Any
+    doc: str
+    lo: float | None = None
+    hi: float | None = None
+    choices: tuple = ()
+    required: bool = False
+
+
+SCHEMA: dict[str, dict[str, Key]] = {
+    "study": {
+        "name": Key("name", None, "study name: letters, digits, '_', '-', '.'", required=True),
+        "description": Key("str", "", "free text"),
+        "seeds": Key("ints", None, "list of seeds, one run per seed", 0, 2**31 - 1, required=True),
+    },
+    "shape": {
+        "coefficients": Key("int", 6, "number N of shape-series coefficients A_1..A_N", 1, 32),
+        "start": Key("pairs", [[-0.09, 0.03]],
+                     "starting A_1, A_2, ... as [real, imag] pairs (missing ones are 0)", -1.0, 1.0),
+        "step": Key("float", 0.02, "initial search step of A_1's components; A_n gets step/n",
+                    1e-6, 0.5),
+        "limit": Key("float", 0.15, "bound on |component of A_n - start_n|, divided by n",
+                     1e-4, 1.0),
+        "te_angle_deg": Key("range", [6.0, 14.0],
+                            "trailing-edge angle in degrees: a number (fixed) or [low, high]",
+                            0.0, 60.0),
+    },
+    "point": {
+        "name": Key("name", None, "operating-point name", required=True),
+        "cl": Key("float", None, "design lift coefficient", -5.0, 5.0, required=True),
+        "cl_range": Key("range", None,
+                        "[low, high]: peak suction is held over the ends and the design Cl",
+                        -5.0, 5.0),
+        "reynolds": Key("float", None, "chord Reynolds number (for stratford_margin)", 1e3, 1e10),
+    },
+    "objectives": {
+        name: Key("float", None, f"weight of {name}: {text}", 0.0, 1e6)
+        for name, text in OBJECTIVES.items()
+    },
+    "constraints": {
+        "min_thickness": Key("float", None, "smallest maximum thickness t/c", 0.0, 1.0),
+        "max_thickness": Key("float", None, "largest maximum thickness t/c", 0.0, 1.0),
+        "thickness_x": Key("range", None, "[low, high] x/c window for the maximum thickness",
+                           0.0, 1.0),
+        "min_le_radius": Key("float", None, "smallest leading-edge radius, chords", 0.0, 1.0),
+        "min_te_angle_deg": Key("float", None, "smallest trailing-edge angle, degrees", 0.0, 60.0),
+        "cm": Key("range", None, "[low, high] bounds on Cm c/4 at the design Cl", -2.0, 2.0),
+        "min_thickness_at": Key("pairs", None, "[[x/c, t/c], ...]: least thickness at stations",
+                                0.0, 1.0),
+        "max_peak_suction": Key("float", None, "largest -Cp_min over the evaluated Cl", 0.0, 100.0),
+    },
+    "search": {
+        "method": Key("choice", "cmaes", "search method", choices=("cmaes",)),
+        "max_evaluations": Key("int", 3000, "evaluation budget of each run", 10, 10**8),
+        "popsize": Key("int", 0, "population size (0: CMA-ES default 4 + 3 ln D)", 0, 100000),
+        "restarts": Key("int", 2, "IPOP restarts, each doubling the population", 0, 20),
+        "points": Key("int", 256, "circle-plane samples per evaluation", 64, 8192),
+        "proxy_end": Key("float", 0.9, "chord station where the recovery proxies stop", 0.5, 1.0),
+    },
+}
+_VARIANT_TABLES = ("shape", "search")
+_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant")
+
+
+def _fail(where: str, msg: str):
+    raise InputError(f"study file {where}: {msg}")
+
+
+def _num(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _check(where: str, path: str, key: Key, v):
+    """Validate one value against its schema entry; returns the normalised value."""
+    lo = -math.inf if key.lo is None else key.lo
+    hi = math.inf if key.hi is None else key.hi
+    rng = f"{key.lo:g} to {key.hi:g}" if key.lo is not None else ""
+    if key.kind == "int":
+        if not (isinstance(v, int) and not isinstance(v, bool)) or not lo <= v <= hi:
+            _fail(where, f"{path} = {v!r} is not allowed (a whole number from {rng})")
+        return int(v)
+    if key.kind == "float":
+        if not _num(v) or not lo <= v <= hi:
+            _fail(where, f"{path} = {v!r} is not allowed (a number from {rng})")
+        return float(v)
+    if key.kind in ("str", "name"):
+        if not isinstance(v, str) or (key.kind == "name" and not _NAME.match(v)):
+            what = "letters, digits, '_', '-', '.' (1 to 64, starting with a letter or digit)"
+            _fail(where, f"{path} = {v!r} is not allowed ({'a string' if key.kind == 'str' else what})")
+        return v
+    if key.kind == "choice":
+        if v not in key.choices:
+            _fail(where, f"{path} = {v!r} is not allowed (one of: {', '.join(key.choices)})")
+        return v
+    if key.kind == "ints":
+        ok = isinstance(v, list) and 1 <= len(v) <= 10000 and all(
+            isinstance(s, int) and not isinstance(s, bool) and lo <= s <= hi for s in v)
+        if not ok or len(set(v)) != len(v):
+            _fail(where, f"{path} = {v!r} is not allowed (a list of distinct whole numbers "
+                         f"from {rng})")
+        return [int(s) for s in v]
+    if key.kind == "range":
+        if _num(v) and key.default is not None and path.endswith("te_angle_deg"):
+            v = [v, v]
+        ok = isinstance(v, list) and len(v) == 2 and all(_num(x) and lo <= x <= hi for x in v)
+        if not ok or v[0] > v[1]:
+            _fail(where, f"{path} = {v!r} is not allowed ([low, high] with low <= high, "
+                         f"each from {rng})")
+        return [float(v[0]), float(v[1])]
+    if key.kind == "pairs":
+        ok = isinstance(v, list) and 1 <= len(v) <= 64 and all(
+            isinstance(p, list) and len(p) == 2 and all(_num(x) and lo <= x <= hi for x in p)
+            for p in v)
+        if not ok:
+            _fail(where, f"{path} = {v!r} is not allowed (a list of [a, b] pairs, each number "
+                         f"from {rng})")
+        return [[float(a), float(b)] for a, b in v]
+    raise AssertionError(key.kind)
+
+
+def _table(where: str, name: str, data, schema: dict[str, Key], required_table=False) -> dict:
+    if data is None:
+        if required_table:
+            _fail(where, f"missing table [{name}]")
+        data = {}
+    if not isinstance(data, dict):
+        _fail(where, f"[{name}] must be a table")
+    out = {}
+    for k in data:
+        if k not in schema:
+            _fail(where, f"unknown key '{name}.{k}' (allowed: {', '.join(schema)})")
+    for k, key in schema.items():
+        if k in data:
+            out[k] = _check(where, f"{name}.{k}", key, data[k])
+        elif key.required:
+            _fail(where, f"missing key '{name}.{k}'")
+        else:
+            out[k] = copy.deepcopy(key.default)
+            if key.kind == "range" and _num(out[k]):
+                out[k] = [float(out[k])] * 2
+    return out
+
+
+# --- the typed, frozen study -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Point:
+    """One operating point."""
+
+    name: str
+    cl: float
+    cl_range: tuple[float, float] | None
+    reynolds: float | None
+
+    @property
+    def cls(self) -> tuple[float, ...]:
+        """Lift coefficients evaluated: the design Cl, then the range ends if any."""
+        if self.cl_range is None:
+            return (self.cl,)
+        return (self.cl, self.cl_range[0], self.cl_range[1])
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    """One run of a study: one search with one seed at one point for one variant."""
+
+    run_id: str
+    seed: int
+    point: Point
+    variant: str
+    shape: dict
+    search: dict
+
+
+@dataclass(frozen=True)
+class Study:
+    """A validated study; ``text`` is the file verbatim (stored in every run log)."""
+
+    name: str
+    description: str
+    seeds: tuple[int, ...]
+    shape: dict
+    points: tuple[Point, ...]
+    objectives: dict[str, float]
+    constraints: dict
+    search: dict
+    variants: tuple[tuple[str, dict], ...]
+    text: str = field(repr=False)
+    source: str = "<text>"
+
+    def runs(self) -> list[RunSpec]:
+        """Expand into runs: variants × points × seeds, in that order."""
+        out = []
+        for vname, over in self.variants:
+            shape = {**self.shape, **over.get("shape", {})}
+            search = {**self.search, **over.get("search", {})}
+            for p in self.points:
+                for s in self.seeds:
+                    rid = f"{p.name}.{vname}.s{s}" if vname else f"{p.name}.s{s}"
+                    out.append(RunSpec(rid, s, p, vname, shape, search))
+        return out
+
+    def with_budget(self, evals: int) -> "Study":
+        """The same study with every run's evaluation budget replaced."""
+        search = {**self.search, "max_evaluations": int(evals)}
+        variants = tuple(
+            (n, {**o, "search": {**o.get("search", {}), "max_evaluations": int(evals)}})
+            for n, o in self.variants)
+        return Study(self.name, self.description, self.seeds, self.shape, self.points,
+                     self.objectives, self.constraints, search, variants, self.text, self.source)
+
+
+def parse_study(text: str, source: str = "<text>") -> Study:
+    """Parse and validate a study file's text; raises :class:`InputError` with one line."""
+    where = repr(source)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        _fail(where, f"is not valid TOML: {exc}")
+    for k in data:
+        if k not in _TOP:
+            _fail(where, f"unknown table or key {k!r} (allowed: {', '.join(_TOP)})")
+    st = _table(where, "study", data.get("study"), SCHEMA["study"], required_table=True)
+    shape = _table(where, "shape", data.get("shape"), SCHEMA["shape"])
+    raw_points = data.get("point")
+    if not isinstance(raw_points, list) or not raw_points:
+        _fail(where, "needs at least one [[point]] table (an operating point with name and cl)")
+    points = []
+    for i, rp in enumerate(raw_points, start=1):
+        p = _table(where, f"point[{i}]", rp, SCHEMA["point"])
+        if p["cl_range"] is not None and not p["cl_range"][0] <= p["cl"] <= p["cl_range"][1]:
+            _fail(where, f"point[{i}].cl = {p['cl']:g} is outside its cl_range "
+                         f"{p['cl_range']!r}")
+        points.append(Point(p["name"], p["cl"], None if p["cl_range"] is None
+                            else tuple(p["cl_range"]), p["reynolds"]))
+    if len({p.name for p in points}) != len(points):
+        _fail(where, "point names must be distinct")
+    obj = data.get("objectives")
+    if not isinstance(obj, dict) or not obj:
+        _fail(where, f"needs an [objectives] table naming at least one of: {', '.join(OBJECTIVES)}")
+    objectives = {k: v for k, v in _table(where, "objectives", obj, SCHEMA["objectives"]).items()
+                  if v is not None}
+    if not any(w > 0 for w in objectives.values()):
+        _fail(where, "[objectives]: at least one weight must be positive")
+    if "stratford_margin" in objectives:
+        for p in points:
+            if p.reynolds is None:
+                _fail(where, f"objective stratford_margin needs 'reynolds' at point {p.name!r}")
+    cons = _table(where, "constraints", data.get("constraints"), SCHEMA["constraints"])
+    cons = {k: v for k, v in cons.items() if v is not None}
+    search = _table(where, "search", data.get("search"), SCHEMA["search"])
+    variants: list[tuple[str, dict]] = []
+    raw_var = data.get("variant", [])
+    if not isinstance(raw_var, list):
+        _fail(where, "'variant' must be a list of [[variant]] tables")
+    for i, rv in enumerate(raw_var, start=1):
+        if not isinstance(rv, dict) or "name" not in rv:
+            _fail(where, f"variant[{i}] needs a 'name'")
+        vname = _check(where, f"variant[{i}].name", Key("name", None, ""), rv["name"])
+        over = {}
+        for k, v in rv.items():
+            if k == "name":
+                continue
+            if k not in _VARIANT_TABLES or not isinstance(v, dict):
+                _fail(where, f"unknown key 'variant[{i}].{k}' (allowed: name, "
+                             f"{', '.join(t + '.KEY' for t in _VARIANT_TABLES)})")
+            sub = {}
+            for kk, vv in v.items():
+                if kk not in SCHEMA[k]:
+                    _fail(where, f"unknown key 'variant[{i}].{k}.{kk}' "
+                                 f"(allowed: {', '.join(SCHEMA[k])})")
+                sub[kk] = _check(where, f"variant[{i}].{k}.{kk}", SCHEMA[k][kk], vv)
+            over[k] = sub
+        variants.append((vname, over))
+    if len({n for n, _ in variants}) != len(variants):
+        _fail(where, "variant names must be distinct")
+    if not variants:
+        variants = [("", {})]
+    study = Study(st["name"], st["description"], tuple(st["seeds"]), shape, tuple(points),
+                  objectives, cons, search, tuple(variants), text, source)
+    for run in study.runs():
+        _check_shape(where, run)
+    return study
+
+
+def _check_shape(where: str, run: RunSpec) -> None:
+    n = run.shape["coefficients"]
+    if len(run.shape["start"]) > n:
+        _fail(where, f"shape.start has {len(run.shape['start'])} pairs but shape.coefficients "
+                     f"= {n} (run {run.run_id})")
+
+
+def load_study(path: str | Path) -> Study:
+    """Read and validate a study file."""
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        raise InputError(f"cannot read study file {str(p)!r}: {reason}") from None
+    return parse_study(text, str(p))
+
+
+# --- design variables --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Parametrisation:
+    """Map between search vectors y and sections.
+
+    y holds 2N scaled shape components, then (if τ varies) one τ coordinate in [0, 1]:
+    A_n = start_n + (step/n)(y_{2n−2} + i y_{2n−1}) and τ = τ_lo + (τ_hi − τ_lo) y_τ.
+    Dividing by n gives higher harmonics smaller steps, which conditions the search
+    (DESIGN.md §1).
+    """
+
+    n: int
+    start: np.ndarray  # complex (N,)
+    step: float
+    limit: float
+    tau_range: tuple[float, float]  # radians
+
+    @classmethod
+    def from_shape(cls, shape: dict) -> "Parametrisation":
+        n = shape["coefficients"]
+        start = np.zeros(n, dtype=complex)
+        for i, (a, b) in enumerate(shape["start"]):
+            start[i] = complex(a, b)
+        lo, hi = shape["te_angle_deg"]
+        return cls(n, start, shape["step"], shape["limit"], (math.radians(lo), math.radians(hi)))
+
+    @property
+    def tau_free(self) -> bool:
+        return self.tau_range[1] > self.tau_range[0]
+
+    @property
+    def dimension(self) -> int:
+        return 2 * self.n + (1 if self.tau_free else 0)
+
+    def x0(self) -> np.ndarray:
+        y = np.zeros(self.dimension)
+        if self.tau_free:
+            y[-1] = 0.5
+        return y
+
+    def bounds(self) -> tuple[list, list]:
+        """Per-coordinate bounds for CMA-ES's BoundTransform."""
+        b = self.limit / self.step  # |y| ≤ limit/step gives |ΔA_n| ≤ limit/n
+        lo = [-b] * (2 * self.n)
+        hi = [b] * (2 * self.n)
+        if self.tau_free:
+            lo.append(0.0)
+            hi.append(1.0)
+        return lo, hi
+
+    def sigma_scales(self) -> np.ndarray:
+        """Relative initial step per coordinate (CMA_stds): τ gets a quarter of its range."""
+        s = np.ones(self.dimension)
+        if self.tau_free:
+            s[-1] = 0.25
+        return s
+
+    def sections(self, y: np.ndarray):
+        """Sections of search vectors ``y`` (B, D)."""
+        from .conformal import SectionSet
+
+        y = np.atleast_2d(y)
+        n = np.arange(1, self.n + 1)
+        a = self.start[None, :] + (self.step / n) * (y[:, 0 : 2 * self.n : 2]
+                                                     + 1j * y[:, 1 : 2 * self.n : 2])
+        if self.tau_free:
+            lo, hi = self.tau_range
+            tau = lo + (hi - lo) * np.clip(y[:, -1], 0.0, 1.0)
+        else:
+            tau = np.full(y.shape[0], self.tau_range[0])
+        return SectionSet(a, tau)
+
