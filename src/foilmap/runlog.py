@@ -265,7 +265,7 @@ def read_run(path: str | Path) -> RunLog:
     import h5py
 
     path = Path(path)
-    with h5py.File(path, "r", libver="latest", swmr=True, locking=False) as f:
+    with h5py.File(path, "r", libver="latest", swmr=True) as f:
         for ds in ("evals/x", "gen/evaluations"):
             f[ds].refresh()
         # read generations first: the evaluation rows they count were flushed before them
