@@ -143,16 +143,25 @@ def _after_peak(u: np.ndarray, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray
 
 
 def recovery_severity(
-    s: np.ndarray, u: np.ndarray, du_ds: np.ndarray, mask: np.ndarray
+    s: np.ndarray, u: np.ndarray, du_ds: np.ndarray, mask: np.ndarray,
+    closing: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
 ) -> np.ndarray:
     """Largest −(s/u) du/ds over the recovery after the suction peak, shape (B,).
 
-    Zero where the speed never falls after its peak within the mask.
+    ``closing = (s_end, u_end, s_te, u_te)``, if given, charges the recovery still owed where the
+    proxies stop: a uniform deceleration from u_end at s_end to u_te at the trailing edge s_te,
+    m = −(s_end/u_end)(u_te − u_end)/(s_te − s_end).  Without it a search can move the suction
+    peak past the end station and hide its recovery.  Zero where the speed never falls.
     """
     _, rec = _after_peak(u, mask)
     with np.errstate(all="ignore"):
         m = s / u * du_ds
     worst = np.max(np.where(rec & np.isfinite(m), -m, -np.inf), axis=1)
+    if closing is not None:
+        s_end, u_end, s_te, u_te = closing
+        with np.errstate(all="ignore"):
+            m_close = s_end / u_end * (u_end - u_te) / (s_te - s_end)
+        worst = np.fmax(worst, np.where(np.isfinite(m_close), m_close, -np.inf))
     return np.maximum(worst, 0.0)
 
 
@@ -171,7 +180,8 @@ class StratfordResult:
 
 
 def stratford(
-    s: np.ndarray, u: np.ndarray, du_ds: np.ndarray, mask: np.ndarray, reynolds: float
+    s: np.ndarray, u: np.ndarray, du_ds: np.ndarray, mask: np.ndarray, reynolds: float,
+    closing: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray] | None = None,
 ) -> StratfordResult:
     """Stratford's turbulent separation criterion over the recovery after the suction peak.
 
@@ -179,6 +189,10 @@ def stratford(
     ----------
     reynolds : float
         Chord Reynolds number V∞ c / ν.
+    closing : (s_end, u_end, s_te, u_te), optional
+        The recovery still owed at the end station, as in :func:`recovery_severity`: the
+        criterion is also evaluated at the trailing edge with C̄p = 1 − (u_te/u_peak)² and the
+        mean gradient from the end station.
     """
     nb, m = u.shape
     r = np.arange(nb)
@@ -205,4 +219,19 @@ def stratford(
     beyond = rec & (cpbar >= 4.0 / 7.0)
     sep_s, _ = _first_crossing((lhs >= 1.0) | beyond, np.where(beyond, 1.0, lhs), 1.0, s, mask)
     margin = np.where(beyond.any(axis=1), np.maximum(margin, 1.0), margin)
+    if closing is not None:
+        s_end, u_end, s_te, u_te = closing
+        ds = s_te - s_end
+        cp_end = 1.0 - (u_end / u_pk) ** 2
+        cp_te = 1.0 - (np.minimum(u_te, u_pk) / u_pk) ** 2
+        with np.errstate(all="ignore"):
+            slope = (cp_te - cp_end) / ds
+            x_te = _cumtrapz(ratio**3, s, mask)[r, jp] + (s_te - s_pk)
+            lhs_te = cp_te * np.sqrt(np.maximum(x_te * slope, 0.0)) * (
+                1e-6 * reynolds * u_pk * x_te) ** -0.1 / 0.35
+        lhs_te = np.where(np.isfinite(lhs_te) & (ds > 0), lhs_te, 0.0)
+        lhs_te = np.where(cp_te >= 4.0 / 7.0, np.maximum(lhs_te, 1.0), lhs_te)
+        sep_te = (lhs_te >= 1.0) & np.isnan(sep_s)
+        sep_s = np.where(sep_te, s_te, sep_s)
+        margin = np.fmax(margin, lhs_te)
     return StratfordResult(margin, sep_s)

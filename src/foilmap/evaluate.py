@@ -58,6 +58,10 @@ DEFAULT_POINTS = 256
 #: edge is removed in real flow by the boundary layer's displacement (common practice in
 #: inviscid screening), and every gradient proxy diverges there
 DEFAULT_PROXY_END = 0.9
+#: speed ratio a real trailing-edge flow recovers to, q/V∞ = 0.95 (Cp_TE ≈ 0.1: common practice
+#: for attached sections, value from memory); the proxies charge any recovery still owed at
+#: ``proxy_end`` down to it, so that a search cannot hide a recovery behind the end station
+TRAILING_EDGE_SPEED = 0.95
 #: proxy names accepted by :func:`evaluate`
 PROXIES = ("severity", "thwaites", "stratford")
 
@@ -220,23 +224,31 @@ def analyse(
         st_m, st_up, st_lo = nan.copy(), nan.copy(), nan.copy()
         if proxies:
             upper, lower = surfaces_from_stagnation(flow, mv, grid, frame, q)
+            masks = [sf.until(proxy_end) for sf in (upper, lower)]
+            ends = [sf.end_state(mk) for sf, mk in zip((upper, lower), masks)]
+            # Kutta: both surfaces reach one trailing-edge pressure, and in real flow that is
+            # slightly above free stream: the recovery still owed at the end station is charged
+            # to reach the lowest of the two end speeds and TRAILING_EDGE_SPEED
+            u_te = np.minimum(np.minimum(ends[0][1], ends[1][1]), TRAILING_EDGE_SPEED)
+            closing = [None, None] if proxy_end >= 0.999 else [
+                (e[0], e[1], sf.s_te, u_te) for e, sf in zip(ends, (upper, lower))]
             if "severity" in proxies:
                 severity = np.maximum(
-                    *(recovery_severity(sf.s, sf.u, sf.du_ds, sf.until(proxy_end))
-                      for sf in (upper, lower))
+                    *(recovery_severity(sf.s, sf.u, sf.du_ds, mk, cl_)
+                      for sf, mk, cl_ in zip((upper, lower), masks, closing))
                 )
             if "thwaites" in proxies:
                 tu, tl = (
-                    thwaites(sf.s, sf.u, sf.du_ds, sf.until(proxy_end), sf.integral0)
-                    for sf in (upper, lower)
+                    thwaites(sf.s, sf.u, sf.du_ds, mk, sf.integral0)
+                    for sf, mk in zip((upper, lower), masks)
                 )
                 th_up = _x_at(upper, tu.separation_s)
                 th_lo = _x_at(lower, tl.separation_s)
                 th_min = np.fmin(tu.min_lambda, tl.min_lambda)
             if "stratford" in proxies:
                 su, sl = (
-                    stratford(sf.s, sf.u, sf.du_ds, sf.until(proxy_end), float(reynolds))
-                    for sf in (upper, lower)
+                    stratford(sf.s, sf.u, sf.du_ds, mk, float(reynolds), cl_)
+                    for sf, mk, cl_ in zip((upper, lower), masks, closing)
                 )
                 st_m = np.fmax(su.margin, sl.margin)
                 st_up = _x_at(upper, su.separation_s)

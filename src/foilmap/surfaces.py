@@ -42,6 +42,14 @@ class Surface:
     phi: np.ndarray
     mask: np.ndarray
     integral0: np.ndarray
+    s_te: np.ndarray  # arc length from the stagnation point to the trailing edge, (B,)
+
+    def end_state(self, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Arc length and speed at the last point of ``mask`` in each row, shapes (B,)."""
+        nb, p = mask.shape
+        last = p - 1 - np.argmax(mask[:, ::-1], axis=1)
+        r = np.arange(nb)
+        return self.s[r, last], self.u[r, last]
 
     def until(self, x_end: float) -> np.ndarray:
         """Mask of the points before the surface first passes the chord station ``x_end``."""
@@ -76,6 +84,7 @@ def surfaces_from_stagnation(
     arc_s = arc[r, j0] + frac * (arc[r, j0 + 1] - arc[r, j0])
     lower_mask = grid.phi[None, :] > phi_s[:, None]
     s_signed = arc - arc_s[:, None]
+    arc_total = arc[:, -1] + 0.5 * h * ds_dphi[:, -1]  # to φ = 2π
     # d ln q/dφ = cos(φ − α')/(sin(φ − α') + sin α') + Im(ζz''/z'), by angle addition on the
     # grid's own cos φ and sin φ
     ca = np.cos(flow.alpha_circle)[:, None]
@@ -102,7 +111,8 @@ def surfaces_from_stagnation(
             ss, uu, du, xx, yy, pp = s_signed, q, grad, x, y, grid.phi
         s_first = np.abs(s_signed[r, jf])
         integral0 = q[r, jf] ** 5 * s_first / 6.0
+        s_te = arc_s if direction < 0 else arc_total - arc_s
         out.append(
-            Surface(ss, uu, du, xx, yy, np.broadcast_to(pp, q.shape), mask, integral0)
+            Surface(ss, uu, du, xx, yy, np.broadcast_to(pp, q.shape), mask, integral0, s_te)
         )
     return out[0], out[1]

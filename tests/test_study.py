@@ -1,0 +1,110 @@
+"""Study files: expansion into runs, defaults, and a table of bad files with their messages."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import pytest
+
+from foilmap import InputError
+from foilmap.study import SCHEMA, parse_study
+
+ROOT = Path(__file__).resolve().parents[1]
+
+BASE = """
+[study]
+name = "t"
+seeds = [1, 2]
+[[point]]
+name = "a"
+cl = 0.5
+[objectives]
+peak_suction = 1.0
+"""
+
+
+def test_defaults_and_expansion():
+    text = BASE + """
+[[point]]
+name = "b"
+cl = 0.8
+cl_range = [0.6, 1.0]
+[[variant]]
+name = "n4"
+shape = { coefficients = 4 }
+[[variant]]
+name = "n8"
+shape = { coefficients = 8 }
+search = { max_evaluations = 500 }
+"""
+    st = parse_study(text)
+    runs = st.runs()
+    assert len(runs) == 2 * 2 * 2  # variants × points × seeds
+    assert [r.run_id for r in runs[:3]] == ["a.n4.s1", "a.n4.s2", "b.n4.s1"]
+    assert runs[0].shape["coefficients"] == 4 and runs[-1].shape["coefficients"] == 8
+    assert runs[-1].search["max_evaluations"] == 500 and runs[0].search["max_evaluations"] == 3000
+    assert runs[2].point.cls == (0.8, 0.6, 1.0)
+    assert st.with_budget(77).runs()[-1].search["max_evaluations"] == 77
+    assert st.text == text
+
+
+BAD = [
+    ("[study\n", "is not valid TOML"),
+    (BASE + "[colour]\nred = 1\n", "unknown table or key 'colour'"),
+    (BASE.replace('name = "t"', 'name = "t"\nowner = "me"'), "unknown key 'study.owner'"),
+    (BASE.replace("seeds = [1, 2]", "seeds = [1, 1]"), "study.seeds = [1, 1] is not allowed"),
+    (BASE.replace("seeds = [1, 2]", "seeds = 3"), "study.seeds = 3 is not allowed"),
+    (BASE.replace("seeds = [1, 2]\n", ""), "missing key 'study.seeds'"),
+    (BASE.replace('name = "t"', 'name = "my study"'), "study.name = 'my study' is not allowed"),
+    (BASE + "[shape]\ncoefficients = 40\n",
+     "shape.coefficients = 40 is not allowed (a whole number from 1 to 32)"),
+    (BASE + "[shape]\ncoefficients = 2.5\n", "shape.coefficients = 2.5 is not allowed"),
+    (BASE + "[shape]\nte_angle_deg = [14.0, 6.0]\n", "shape.te_angle_deg = [14.0, 6.0] is not allowed"),
+    (BASE + "[shape]\ncoefficients = 1\nstart = [[-0.1, 0.0], [0.0, 0.0]]\n",
+     "shape.start has 2 pairs but shape.coefficients = 1"),
+    (BASE.replace("cl = 0.5", "cl = 9.0"), "point[1].cl = 9.0 is not allowed (a number from -5 to 5)"),
+    (BASE.replace("cl = 0.5", "cl = 0.5\ncl_range = [0.6, 0.9]"), "point[1].cl = 0.5 is outside its cl_range"),
+    (BASE.replace("[[point]]\nname = \"a\"\ncl = 0.5\n", ""), "needs at least one [[point]] table"),
+    (BASE.replace("peak_suction = 1.0", "drag = 1.0"), "unknown key 'objectives.drag'"),
+    (BASE.replace("peak_suction = 1.0", "peak_suction = 0.0"), "at least one weight must be positive"),
+    (BASE.replace("peak_suction = 1.0", "stratford_margin = 1.0"),
+     "objective stratford_margin needs 'reynolds' at point 'a'"),
+    (BASE + "[constraints]\nmin_thickness = 'thick'\n", "constraints.min_thickness = 'thick' is not allowed"),
+    (BASE + "[constraints]\ncm = [0.1]\n", "constraints.cm = [0.1] is not allowed"),
+    (BASE + "[search]\nmethod = 'random'\n", "search.method = 'random' is not allowed (one of: cmaes)"),
+    (BASE + "[search]\nmax_evaluations = 5\n", "search.max_evaluations = 5 is not allowed"),
+    (BASE + "[[variant]]\nname = 'v'\nflow = { cl = 1 }\n", "unknown key 'variant[1].flow'"),
+    (BASE + "[[variant]]\nname = 'v'\nshape = { n = 1 }\n", "unknown key 'variant[1].shape.n'"),
+    (BASE + "[[variant]]\nname = 'v'\nshape = { coefficients = 0 }\n",
+     "variant[1].shape.coefficients = 0 is not allowed"),
+]
+
+
+@pytest.mark.parametrize("text,message", BAD)
+def test_bad_study_files(text, message):
+    with pytest.raises(InputError) as err:
+        parse_study(text, "bad.toml")
+    msg = str(err.value)
+    assert message in msg
+    assert "\n" not in msg and "bad.toml" in msg
+
+
+def test_docs_describe_every_key():
+    doc = (ROOT / "docs" / "study-file.md").read_text()
+    for table, keys in SCHEMA.items():
+        for key in keys:
+            assert re.search(rf"`{re.escape(key)}`", doc), f"{table}.{key} missing from docs"
+
+
+STUDIES = sorted(p for p in (ROOT / "studies").glob("*.toml") if "[study]" in p.read_text())
+
+
+def test_studies_are_shipped():
+    assert len(STUDIES) >= 2
+
+
+@pytest.mark.parametrize("path", STUDIES, ids=lambda p: p.name)
+def test_shipped_studies_load(path):
+    st = parse_study(path.read_text(), str(path))
+    assert st.runs()
