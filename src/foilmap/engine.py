@@ -42,6 +42,10 @@ INDEX_NAME = "index.json"
 STUDY_NAME = "study.toml"
 OPTIONS_NAME = "options.json"
 _QUEUE = None  # progress queue of a worker process
+#: seconds between commits of a run (log rows flushed, then the checkpoint renamed into place):
+#: a killed run loses at most this much search, and per-generation costs (HDF5 writes, the
+#: checkpoint pickle) are paid at most once a second when generations are fast
+COMMIT_INTERVAL = 1.0
 
 
 def run_paths(out: Path, run_id: str) -> tuple[Path, Path]:
@@ -107,14 +111,20 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None) -> dict:
             chunk_rows=state.base_popsize)
         save_checkpoint(ckpt_path, state)
     with writer:
+        pending = []
+        last = time.monotonic()
         while not is_finished(state):
             gen, _ = step(state, problem, run.search)
-            writer.append(gen)  # write and flush the generation first ...
-            save_checkpoint(ckpt_path, state)  # ... then the checkpoint, atomically
-            if report is not None:
-                report({"run": run.run_id, "generation": gen.generation,
-                        "evaluations": gen.evaluations, "best": gen.best_f,
-                        "feasible": gen.feasible_fraction, "sigma": gen.sigma})
+            pending.append(gen)
+            if time.monotonic() - last >= COMMIT_INTERVAL or is_finished(state):
+                writer.append(pending)  # write and flush the generations first ...
+                save_checkpoint(ckpt_path, state)  # ... then the checkpoint, atomically
+                pending = []
+                last = time.monotonic()
+                if report is not None:
+                    report({"run": run.run_id, "generation": gen.generation,
+                            "evaluations": gen.evaluations, "best": gen.best_f,
+                            "feasible": gen.feasible_fraction, "sigma": gen.sigma})
         writer.finish(STATE_COMPLETE)
     ckpt_path.unlink(missing_ok=True)
     return _summary(run, log_path)

@@ -151,6 +151,25 @@ class Analysis:
     frame: ChordFrame
     flow: FlowState
     split: SurfaceSplit
+    grid: CircleGrid | None = None
+    map_values: object = None
+
+    def peak_suction_at(self, cl) -> tuple[np.ndarray, np.ndarray]:
+        """Peak suction −Cp_min and status at another lift coefficient, reusing the map.
+
+        The geometry and the map do not depend on incidence, so only the flow and the refined
+        peak are computed: returns ``(peak_suction, status)``, shapes (B,); NaN and
+        ABOVE_MAX_LIFT where the section cannot reach ``cl``, and the original status where
+        the section itself is invalid.
+        """
+        fl = flow_at_cl(self.sections, self.frame, cl)
+        with np.errstate(all="ignore"):
+            q = surface_speed(fl, self.map_values, self.grid)
+            q_pk, _ = peak_suction(self.sections, fl, q, self.grid)
+        status = np.where(self.evaluation.status == Status.OK, fl.status,
+                          self.evaluation.status).astype(np.int8)
+        peak = np.where(status == Status.OK, q_pk**2 - 1.0, np.nan)
+        return peak, status
 
 
 def analyse(
@@ -288,7 +307,7 @@ def analyse(
             values[name] = v
     upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
     ev = Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
-    return Analysis(sections, ev, frame, flow, split)
+    return Analysis(sections, ev, frame, flow, split, grid, mv)
 
 
 def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "cosine"):

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .evaluate import analyse, evaluate
+from .evaluate import analyse
 from .geometry import thickness_at
 from .status import Status
 from .study import Parametrisation, Point, RunSpec, Study
@@ -108,9 +108,9 @@ class Problem:
         status = ev.status.copy()
         peak = -ev.cp_min
         for cl in self.point.cls[1:]:
-            other = evaluate(sec, cl=cl, points=self.points, proxies=())
-            status = np.where(status == Status.OK, other.status, status).astype(np.int8)
-            peak = np.fmax(peak, -other.cp_min)
+            other, st = an.peak_suction_at(cl)
+            status = np.where(status == Status.OK, st, status).astype(np.int8)
+            peak = np.fmax(peak, other)
         values = {
             "peak_suction": peak,
             "severity": ev.severity,

@@ -5,8 +5,9 @@ writer creates every object first, then switches to SWMR mode (single writer, mu
 and afterwards only resizes, writes and flushes, so that ``foilmap status`` can read a live run.
 The file format is capped at HDF5 1.10 (``libver=('v110', 'v110')``) so that older tools read it.
 
-Crash safety: a generation is written and flushed before the run's resume checkpoint is saved
-(write-then-rename, :func:`save_checkpoint`).  A run killed at any moment resumes from the last
+Crash safety: generations are written and flushed before the run's resume checkpoint is saved
+(write-then-rename, :func:`save_checkpoint`); the engine commits both together at least every
+second (every generation when generations are slower than that).  A run killed at any moment resumes from the last
 checkpoint: :func:`RunLogWriter.reopen` copies the rows up to that checkpoint into a fresh file
 and renames it over the old one, so a half-written generation is dropped.
 """
@@ -95,6 +96,9 @@ class RunLogWriter:
     def __init__(self, path: Path, h5file):
         self.path = Path(path)
         self.f = h5file
+        # dataset handles looked up once: a group lookup costs more than a small write
+        self._ev = {k: h5file["evals"][k] for k in EVAL_FIELDS}
+        self._gen = {k: h5file["gen"][k] for k in GEN_FIELDS}
 
     @classmethod
     def create(cls, path: str | Path, *, attrs: dict, study_text: str, dimension: int,
@@ -184,18 +188,21 @@ class RunLogWriter:
             raise
         return cls(path, f)
 
-    def append(self, g: Generation) -> None:
-        """Write one generation and flush (survives a process kill from here on)."""
-        ev, gen = self.f["evals"], self.f["gen"]
-        lam = g.x.shape[0]
-        _append(ev["x"], g.x)
-        _append(ev["f"], g.f)
-        _append(ev["objectives"], g.objectives)
-        _append(ev["constraints"], g.constraints)
-        _append(ev["status"], g.status)
-        _append(ev["generation"], np.full(lam, g.generation))
+    def append(self, gens: "Generation | list[Generation]") -> None:
+        """Write one or more generations and flush (survives a process kill from here on)."""
+        gens = [gens] if isinstance(gens, Generation) else list(gens)
+        if not gens:
+            return
+        ev, gen = self._ev, self._gen
+        cat = np.concatenate
+        _append(ev["x"], cat([g.x for g in gens]))
+        _append(ev["f"], cat([g.f for g in gens]))
+        _append(ev["objectives"], cat([g.objectives for g in gens]))
+        _append(ev["constraints"], cat([g.constraints for g in gens]))
+        _append(ev["status"], cat([g.status for g in gens]))
+        _append(ev["generation"], cat([np.full(g.x.shape[0], g.generation) for g in gens]))
         for name in GEN_FIELDS:
-            _append(gen[name], [getattr(g, name)])
+            _append(gen[name], [getattr(g, name) for g in gens])
         self.f.flush()
 
     def finish(self, state: int = STATE_COMPLETE) -> None:
@@ -289,15 +296,24 @@ def read_run(path: str | Path) -> RunLog:
                       int(meta["resumes"][0]))
 
 
+_LAST_FSYNC: dict[str, float] = {}
+#: seconds between fsyncs of a run's checkpoint: rename-over is atomic for a killed process at
+#: every generation; the fsync (against a power cut) is paid at most this often
+FSYNC_INTERVAL = 10.0
+
+
 def save_checkpoint(path: str | Path, state) -> None:
-    """Pickle ``state`` to ``path`` atomically (temporary file, fsync, rename)."""
+    """Pickle ``state`` to ``path`` atomically (temporary file, rename; fsync every 10 s)."""
     path = Path(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
         with os.fdopen(fd, "wb") as fh:
             pickle.dump(state, fh, protocol=pickle.HIGHEST_PROTOCOL)
-            fh.flush()
-            os.fsync(fh.fileno())
+            now = time.monotonic()
+            if now - _LAST_FSYNC.get(str(path), -1e9) >= FSYNC_INTERVAL:
+                fh.flush()
+                os.fsync(fh.fileno())
+                _LAST_FSYNC[str(path)] = now
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):

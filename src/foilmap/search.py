@@ -22,6 +22,9 @@ from .runlog import Generation
 
 __all__ = ["SearchState", "new_search", "step", "is_finished", "private_randn"]
 
+# cma mentions an optional archive package it can use for convergence tracking; not needed here
+warnings.filterwarnings("ignore", message=r".*moarchiving.*", category=UserWarning)
+
 
 def private_randn(seed: int, restart: int):
     """A picklable N(0, 1) sampler of shape (λ, N), private to one run and restart."""
@@ -31,9 +34,7 @@ def private_randn(seed: int, restart: int):
 
 def _new_es(problem: Problem, search: dict, seed: int, restart: int, popsize: int,
             remaining: int):
-    with warnings.catch_warnings():  # an optional archive package cma mentions; not needed
-        warnings.simplefilter("ignore", UserWarning)
-        import cma
+    import cma
 
     p = problem.param
     lo, hi = p.bounds()

@@ -1,0 +1,239 @@
+"""Searches and run logs: same seed same bits, resume after SIGKILL and SIGTERM, live status,
+the documented log schema, and the best design re-evaluated from its section file."""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+
+from foilmap import evaluate, load_section
+from foilmap.engine import execute_run, prepare_folder
+from foilmap.runlog import read_run
+from foilmap.study import parse_study
+
+ROOT = Path(__file__).resolve().parents[1]
+
+STUDY = """
+# test study (invented data)
+[study]
+name = "t"
+seeds = [3, 4]
+[shape]
+coefficients = 4
+te_angle_deg = [6.0, 12.0]
+[[point]]
+name = "p"
+cl = 0.5
+cl_range = [0.4, 0.6]
+[objectives]
+peak_suction = 1.0
+severity = 0.1
+[constraints]
+min_thickness = 0.10
+min_le_radius = 0.006
+cm = [-0.12, 0.0]
+min_thickness_at = [[0.9, 0.015]]
+[search]
+max_evaluations = 400
+restarts = 1
+"""
+
+REPRODUCIBLE = ("evals/x", "evals/f", "evals/objectives", "evals/constraints", "evals/status",
+                "evals/generation", "gen/evaluations", "gen/restart", "gen/popsize", "gen/sigma",
+                "gen/mean", "gen/best_f", "gen/best_index", "gen/feasible_fraction")
+
+
+def logs_equal(a: Path, b: Path) -> None:
+    la, lb = read_run(a), read_run(b)
+    for name in REPRODUCIBLE:
+        grp, key = name.split("/")
+        xa, xb = getattr(la, grp)[key], getattr(lb, grp)[key]
+        assert xa.shape == xb.shape, name
+        assert np.array_equal(xa, xb, equal_nan=True), name  # bit for bit
+
+
+def one_run(tmp_path, name, budget=None, text=STUDY):
+    study = parse_study(text)
+    out = tmp_path / name
+    study = prepare_folder(study, out, budget)
+    run = study.runs()[0]
+    execute_run(study, run, out)
+    return out / "runs" / f"{run.run_id}.h5"
+
+
+def test_same_seed_gives_the_same_bits(tmp_path):
+    a = one_run(tmp_path, "a")
+    np.random.seed(12345)  # the global generator must not matter
+    np.random.standard_normal(1000)
+    b = one_run(tmp_path, "b")
+    logs_equal(a, b)
+    log = read_run(a)
+    assert log.state_name == "complete" and log.evaluations >= 400
+    assert log.best() is not None
+
+
+def test_different_seeds_differ(tmp_path):
+    a = one_run(tmp_path, "a")
+    b = one_run(tmp_path, "b", text=STUDY.replace("seeds = [3, 4]", "seeds = [5]"))
+    assert not np.array_equal(read_run(a).evals["x"][:20], read_run(b).evals["x"][:20])
+
+
+def test_log_schema_is_documented_and_complete(tmp_path):
+    path = one_run(tmp_path, "a")
+    doc = (ROOT / "docs" / "run-log.md").read_text()
+    documented_ds = set(re.findall(r"^\| `([a-z_]+(?:/[a-z_]+)?)` \| \(|^\| `(study_text)`", doc,
+                                   flags=re.M))
+    documented_ds = {d[0] or d[1] for d in documented_ds}
+    documented_attrs = set(re.findall(r"^\| `([a-z_]+)` \| (?:string|integer|JSON)", doc, flags=re.M))
+    found = set()
+    with h5py.File(path, "r") as f:
+        f.visititems(lambda name, obj: found.add(name) if isinstance(obj, h5py.Dataset) else None)
+        attrs = set(f.attrs)
+        assert f.attrs["schema_version"] == "1.0"
+        assert f["evals/x"].compression == "gzip"
+        assert f["evals/x"].chunks[0] == f.attrs["chunk_rows"]
+        study_text = f["study_text"].asstr()[()]
+    assert found == documented_ds, (found ^ documented_ds)
+    assert attrs == documented_attrs, (attrs ^ documented_attrs)
+    assert study_text == STUDY
+    log = read_run(path)
+    for k in ("x", "f", "objectives", "constraints", "status", "generation"):
+        assert log.evals[k].shape[0] == log.evaluations
+    assert log.evals["constraints"].shape[1] == len(log.constraint_names) == 5
+    assert json.loads(log.attrs["point"])["cl"] == 0.5
+
+
+def test_best_design_meets_its_constraints_from_the_section_file(tmp_path):
+    path = one_run(tmp_path, "a")
+    out = path.parents[1]
+    sec_file = tmp_path / "best.toml"
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "best", str(out), "-o",
+                        str(sec_file)], capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr
+    rec = load_section(sec_file)
+    ev = evaluate(rec.to_set(), cl=0.5, proxies=("severity",))
+    assert ev.status[0] == 0
+    assert ev.thickness[0] >= 0.10 - 1e-9
+    assert ev.le_radius[0] >= 0.006 - 1e-9
+    assert -0.12 - 1e-9 <= ev.cm_quarter_chord[0] <= 1e-9
+    best = read_run(path).best()
+    peak = max(-evaluate(rec.to_set(), cl=c).cp_min[0] for c in (0.5, 0.4, 0.6))
+    assert peak == pytest.approx(best["objectives"][0], rel=1e-9)
+    assert rec.provenance["evaluation"] == best["index"]
+
+
+# --- real processes: kill, terminate, live status ----------------------------------------------
+
+SLOW = STUDY.replace("max_evaluations = 400", "max_evaluations = 3000").replace(
+    "seeds = [3, 4]", "seeds = [3]")
+
+
+def start_run(study_file: Path, out: Path) -> subprocess.Popen:
+    return subprocess.Popen(
+        [sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out", str(out),
+         "--workers", "1"], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+        start_new_session=True)
+
+
+def wait_for_generations(log: Path, n: int, proc, timeout=90.0) -> int:
+    t0 = time.time()
+    while time.time() - t0 < timeout:
+        assert proc.poll() is None, "the run ended before it could be interrupted"
+        if log.exists():
+            try:
+                g = read_run(log).generations
+                if g >= n:
+                    return g
+            except Exception:
+                pass
+        time.sleep(0.05)
+    raise AssertionError("no progress")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGTERM])
+def test_killed_run_resumes_to_identical_log(tmp_path, sig):
+    study_file = tmp_path / "s.toml"
+    study_file.write_text(SLOW)
+    ref = tmp_path / "ref"
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out",
+                        str(ref), "--workers", "1"], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    out = tmp_path / "cut"
+    proc = start_run(study_file, out)
+    log = out / "runs" / "p.s3.h5"
+    seen = wait_for_generations(log, 40, proc)
+    # a live reader sees the run while it is written
+    st = subprocess.run([sys.executable, "-m", "foilmap.cli", "status", str(out), "--json"],
+                        capture_output=True, text=True, timeout=60)
+    assert st.returncode == 0, st.stderr
+    row = json.loads(st.stdout)["runs"][0]
+    assert row["state"] in ("running", "unfinished") and row["generations"] >= seen
+    os.killpg(proc.pid, sig)
+    proc.wait(timeout=60)
+    cut = read_run(log)
+    assert cut.state_name != "complete" and 0 < cut.generations
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out)],
+                       capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    logs_equal(ref / "runs" / "p.s3.h5", log)
+    done = read_run(log)
+    assert done.state_name == "complete" and done.resumes == 1
+    assert not (out / "runs" / "p.s3.resume").exists()
+    index = json.loads((out / "index.json").read_text())
+    assert index["runs"][0]["state"] == "complete"
+
+
+@pytest.mark.slow
+def test_rerunning_a_complete_study_skips_its_runs(tmp_path):
+    study_file = tmp_path / "s.toml"
+    study_file.write_text(STUDY)
+    out = tmp_path / "o"
+    args = [sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out", str(out)]
+    r = subprocess.run(args, capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    assert "2 runs finished now" in r.stdout
+    before = {p: p.stat().st_mtime_ns for p in (out / "runs").glob("*.h5")}
+    r = subprocess.run(args, capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0 and "0 runs finished now" in r.stdout
+    assert before == {p: p.stat().st_mtime_ns for p in (out / "runs").glob("*.h5")}
+    st = subprocess.run([sys.executable, "-m", "foilmap.cli", "status", str(out)],
+                        capture_output=True, text=True, timeout=60)
+    assert "2 complete" in st.stdout
+    png = tmp_path / "conv.png"
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "plot-run", str(out), "-o", str(png)],
+                       capture_output=True, text=True, timeout=120)
+    assert r.returncode == 0, r.stderr
+    assert png.read_bytes()[:4] == b"\x89PNG"
+
+
+@pytest.mark.parametrize("args,message", [
+    (["run", "{bad}"], "shape.coefficients = 99 is not allowed"),
+    (["run", "{good}", "--workers", "0"], "workers 0 is out of range"),
+    (["run", "{good}", "--budget", "3"], "budget 3 is out of range"),
+    (["status", "{tmp}"], "is not a study folder"),
+    (["resume", "{tmp}"], "is not a study folder"),
+    (["best", "{tmp}", "-o", "{tmp}/x.toml"], "is not a study folder"),
+])
+def test_bad_study_input_writes_nothing(tmp_path, args, message):
+    good = tmp_path / "good.toml"
+    good.write_text(STUDY)
+    bad = tmp_path / "bad.toml"
+    bad.write_text(STUDY.replace("coefficients = 4", "coefficients = 99"))
+    before = set(tmp_path.iterdir())
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli",
+                        *[a.format(bad=bad, good=good, tmp=tmp_path) for a in args]],
+                       capture_output=True, text=True, timeout=60, cwd=tmp_path)
+    assert r.returncode == 2
+    assert len(r.stderr.strip().splitlines()) == 1 and message in r.stderr
+    assert set(tmp_path.iterdir()) == before  # nothing written, no results/ folder
