@@ -22,9 +22,6 @@ from .runlog import Generation
 
 __all__ = ["SearchState", "new_search", "step", "is_finished", "private_randn"]
 
-# cma mentions an optional archive package it can use for convergence tracking; not needed here
-warnings.filterwarnings("ignore", message=r".*moarchiving.*", category=UserWarning)
-
 
 def private_randn(seed: int, restart: int):
     """A picklable N(0, 1) sampler of shape (λ, N), private to one run and restart."""
@@ -104,11 +101,14 @@ def step(state: SearchState, problem: Problem, search: dict) -> tuple[Generation
                                 state.max_evaluations - state.evaluations)
     x = np.array(es.ask())
     out = problem.evaluate(x)
-    if out.constraints.shape[1]:
-        scaled = out.constraints / problem.constraint_scales
-        es.tell(list(x), list(out.f), constraints_values=[list(r) for r in scaled])
-    else:
-        es.tell(list(x), list(out.f))
+    with warnings.catch_warnings():
+        # cma mentions an optional archive package for convergence tracking; not needed here
+        warnings.filterwarnings("ignore", message=r".*moarchiving", category=UserWarning)
+        if out.constraints.shape[1]:
+            scaled = out.constraints / problem.constraint_scales
+            es.tell(list(x), list(out.f), constraints_values=[list(r) for r in scaled])
+        else:
+            es.tell(list(x), list(out.f))
     first = state.evaluations
     state.evaluations += x.shape[0]
     state.generation += 1
