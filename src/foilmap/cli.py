@@ -7,6 +7,7 @@ import argparse
 import json
 import math
 import sys
+import time
 from pathlib import Path
 
 from . import __version__
@@ -139,24 +140,35 @@ def cmd_coords(args) -> int:
     return EXIT_OK
 
 
-def cmd_plot(args) -> int:
-    from .plotting import plot_section
-
-    rec, an = _analyse(args)
-    _check_ok(rec, an)
-    out = Path(args.output)
+def _png_target(output: str, command: str) -> Path:
+    """Check a PNG output path before any work is done."""
+    out = Path(output)
     if out.suffix.lower() != ".png":
-        raise InputError(f"plot: output {str(out)!r} must end in .png")
+        raise InputError(f"{command}: output {str(out)!r} must end in .png")
     if not out.parent.exists():
-        raise InputError(f"plot: folder {str(out.parent)!r} does not exist")
+        raise InputError(f"{command}: folder {str(out.parent)!r} does not exist")
+    return out
+
+
+def _write_png(out: Path, draw) -> None:
+    """Draw into a temporary file and rename it into place: whole or not at all."""
     tmp = out.with_name(f".{out.stem}.part.png")
     try:
-        plot_section(an, tmp, rec.name)
+        draw(tmp)
         tmp.replace(out)
     finally:
         if tmp.exists():
             tmp.unlink()
     print(f"plot written to {out}")
+
+
+def cmd_plot(args) -> int:
+    from .plotting import plot_section
+
+    out = _png_target(args.output, "plot")
+    rec, an = _analyse(args)
+    _check_ok(rec, an)
+    _write_png(out, lambda tmp: plot_section(an, tmp, rec.name))
     return EXIT_OK
 
 
@@ -224,19 +236,8 @@ def cmd_best(args) -> int:
 def cmd_plot_run(args) -> int:
     from .studyreport import plot_runs
 
-    out = Path(args.output)
-    if out.suffix.lower() != ".png":
-        raise InputError(f"plot-run: output {str(out)!r} must end in .png")
-    if not out.parent.exists():
-        raise InputError(f"plot-run: folder {str(out.parent)!r} does not exist")
-    tmp = out.with_name(f".{out.stem}.part.png")
-    try:
-        plot_runs(Path(args.folder), tmp)
-        tmp.replace(out)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
-    print(f"plot written to {out}")
+    out = _png_target(args.output, "plot-run")
+    _write_png(out, lambda tmp: plot_runs(Path(args.folder), tmp))
     return EXIT_OK
 
 
@@ -244,6 +245,7 @@ def cmd_demo(args) -> int:
     import shutil
     from importlib.resources import files
 
+    from .conformal import SectionSet
     from .study import parse_study
     from .studyreport import best_design, plot_runs
 
@@ -254,7 +256,7 @@ def cmd_demo(args) -> int:
         shutil.rmtree(out)  # the demo folder is the demo's own: start afresh
     out.mkdir(parents=True)
     (out / "demo-study.toml").write_text(text, encoding="utf-8")
-    t0 = __import__("time").time()
+    t0 = time.time()
     code = _run_folder(study, out, args.workers, None)
     plot_runs(out, out / "convergence.png")
     from .evaluate import analyse
@@ -266,9 +268,9 @@ def cmd_demo(args) -> int:
         f"demo-{run.run_id}", b["coefficients"], b["te_angle_deg"],
         {"study": "demo", "run": run.run_id, "evaluation": b["index"], "objective": b["f"],
          "design_cl": run.point.cl}))
-    an = analyse(SectionSet_from(b), cl=run.point.cl, proxies=("severity",))
+    an = analyse(SectionSet.single(b["coefficients"], b["te_angle_deg"]), cl=run.point.cl)
     plot_section(an, out / "best-section.png", f"demo best ({run.run_id})")
-    took = __import__("time").time() - t0
+    took = time.time() - t0
     print(f"demo finished in {took:.0f} s: best feasible objective {b['f']:.5f} "
           f"(run {run.run_id})")
     for name in ("demo-study.toml", "runs", "index.json", "convergence.png", "best-section.toml",
@@ -277,14 +279,6 @@ def cmd_demo(args) -> int:
     print("Next: foilmap status " + str(out) + "   |   foilmap evaluate "
           + str(out / "best-section.toml") + " --cl 0.5")
     return code
-
-
-def SectionSet_from(b):
-    import numpy as np
-
-    from .conformal import SectionSet
-
-    return SectionSet(np.asarray(b["coefficients"])[None, :], np.radians([b["te_angle_deg"]]))
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from .conformal import SectionSet
-from .errors import InputError
+from .errors import InputError, read_input_text
 
 __all__ = [
     "SectionRecord",
@@ -129,13 +129,7 @@ def parse_section(text: str, source: str = "<text>") -> SectionRecord:
 
 def load_section(path: str | os.PathLike) -> SectionRecord:
     """Read and validate a section file."""
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
-        raise InputError(f"cannot read section file {str(p)!r}: {reason}") from None
-    return parse_section(text, str(p))
+    return parse_section(read_input_text(path, "section"), str(path))
 
 
 def _toml_value(v) -> str:

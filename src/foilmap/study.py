@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, read_input_text
 
 __all__ = [
     "SCHEMA",
@@ -344,13 +344,7 @@ def _check_shape(where: str, run: RunSpec) -> None:
 
 def load_study(path: str | Path) -> Study:
     """Read and validate a study file."""
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as exc:
-        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
-        raise InputError(f"cannot read study file {str(p)!r}: {reason}") from None
-    return parse_study(text, str(p))
+    return parse_study(read_input_text(path, "study"), str(path))
 
 
 # --- design variables --------------------------------------------------------------------------
