@@ -146,8 +146,9 @@ def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
         if ok.any():
             ax_c.plot(e[ok], b[ok], lw=1.2, label=r.run_id)
             finals.append((float(b[ok][-1]), r.run_id))
-    best_all = min((f for f, _ in finals), default=None)
-    if best_all is not None and all(f > 0 for f, _ in finals):
+    lows = [f for f, _ in finals]
+    firsts = [ln.get_ydata()[0] for ln in ax_c.get_lines()]
+    if lows and min(lows) > 0 and max(firsts) / min(lows) > 10:  # log scale where it suits
         ax_c.set_yscale("log")
     ax_c.set_xlabel("evaluations")
     ax_c.set_ylabel("best feasible objective")
@@ -167,7 +168,8 @@ def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
     ax_s.set_aspect("equal")
     ax_s.set_xlabel("x / chord")
     ax_s.set_title("best sections", fontsize=10)
-    ax_s.legend(fontsize=7, frameon=False)
+    ax_s.legend(fontsize=7, frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.5),
+                ncol=2)
     ax_p.invert_yaxis()
     ax_p.set_xlabel("x / chord")
     ax_p.set_ylabel("Cp at the design Cl")
