@@ -281,6 +281,55 @@ def cmd_demo(args) -> int:
     return code
 
 
+def cmd_naca(args) -> int:
+    from .naca import naca4_coordinates, parse_naca4
+    from .report import xy_lines
+    from .sectionfile import write_text_atomic
+
+    parse_naca4(args.code)
+    xy = naca4_coordinates(args.code, args.points, closed_te=not args.open_te)
+    edge = "open" if args.open_te else "closed"
+    head = f"NACA {args.code.strip().upper().removeprefix('NACA').strip()}  ({edge} trailing edge)"
+    body = xy_lines(xy[:, 0], xy[:, 1])
+    write_text_atomic(args.output, f"{head}\n{body}\n")
+    print(f"{args.points} points written to {args.output}")
+    return EXIT_OK
+
+
+def cmd_fit(args) -> int:
+    from .coordfile import load_coordinates
+    from .fitting import fit_section
+    from .report import CAUTION
+    from .sectionfile import format_section, write_text_atomic
+
+    if args.report:
+        report = _png_target(args.report, "fit")
+    coords = load_coordinates(args.coords)
+    fit = fit_section(coords.xy, coords.le_index, args.n)
+    print(f"read {coords.xy.shape[0]} points of {coords.name!r} ({coords.layout} layout"
+          f"{', reversed to run over the upper surface first' if coords.reversed else ''})")
+    if coords.te_gap > 0:
+        print(f"open trailing edge: gap {coords.te_gap:.5f} chords, closed for the fit by a "
+              f"linear thickness ramp (largest shift {coords.closing_shift:.5f} chords)")
+    print(f"trailing-edge angle {math.degrees(fit.te_angle):.3f} deg; Theodorsen iteration "
+          f"{'converged' if fit.converged else 'NOT converged'} in {fit.iterations} steps")
+    print(f"deviation with {args.n} coefficients: max {fit.max_deviation:.2e}, "
+          f"RMS {fit.rms_deviation:.2e} chords (full series of {fit.full_terms} terms: "
+          f"max {fit.full_max_deviation:.2e})")
+    prov = {"fitted_from": str(args.coords), "coefficients_fitted": args.n,
+            "max_deviation_chords": fit.max_deviation, "rms_deviation_chords": fit.rms_deviation,
+            "te_gap_chords": coords.te_gap}
+    write_text_atomic(args.output, format_section(coords.name, fit.coefficients,
+                                                  math.degrees(fit.te_angle), prov))
+    print(f"section written to {args.output}")
+    if args.report:
+        from .plotting import plot_fit
+
+        _write_png(report, lambda tmp: plot_fit(coords, fit, tmp))
+    print(CAUTION)
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="foilmap", description=(
         "Search and evaluate aerofoil and hydrofoil sections by generalised conformal maps. "
@@ -351,6 +400,24 @@ def build_parser() -> argparse.ArgumentParser:
                    help="output folder (default results/demo; replaced on every demo)")
     d.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
     d.set_defaults(func=cmd_demo)
+
+    nc = sub.add_parser("naca", help="coordinates of a NACA four-digit section (published formula)")
+    nc.add_argument("code", help="four digits, for example 2412")
+    nc.add_argument("-n", "--points", type=_int_range("points", 11, 100001), default=161,
+                    help="number of points (default 161, cosine spacing)")
+    nc.add_argument("--open-te", action="store_true",
+                    help="the original open trailing edge (-0.1015) instead of the closed one")
+    nc.add_argument("-o", "--output", required=True, metavar="FILE")
+    nc.set_defaults(func=cmd_naca)
+
+    ft = sub.add_parser("fit", help="conformal-map coefficients of a coordinates file")
+    ft.add_argument("coords", help="coordinates file (two columns; see docs/coordinates.md)")
+    ft.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24, metavar="N",
+                    help="coefficients to keep (default 24)")
+    ft.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
+    ft.add_argument("--report", metavar="FILE.png",
+                    help="overlay of given and fitted contours with the deviation along the chord")
+    ft.set_defaults(func=cmd_fit)
     return p
 
 

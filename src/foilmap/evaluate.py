@@ -50,7 +50,8 @@ __all__ = [
     "Analysis",
     "evaluate",
     "analyse",
-    "surface_distribution", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
+    "surface_distribution",
+    "speed_at_stations", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
 
 #: circle-plane samples per section in searches (peak suction is refined beyond the grid)
 DEFAULT_POINTS = 256
@@ -308,6 +309,24 @@ def analyse(
     upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
     ev = Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
     return Analysis(sections, ev, frame, flow, split, grid, mv)
+
+
+def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarray:
+    """Speed ratio q = V/V∞ at chord stations ``x`` (M,) on one surface, shape (B, M).
+
+    The points are exact contour points (Newton on the map), so the speed is exact there.
+    """
+    from .geometry import exact_points_at_x
+
+    if surface not in ("upper", "lower"):
+        raise ValueError(f"surface must be 'upper' or 'lower', not {surface!r}")
+    x = np.asarray(x, dtype=float)
+    keys = -x if surface == "upper" else x
+    sec, fl = analysis.sections, analysis.flow
+    _, phi = exact_points_at_x(sec, analysis.frame, analysis.split, keys, return_phi=True)
+    m = map_at(sec, np.exp(1j * phi))
+    ap = fl.alpha_circle[:, None]
+    return 2.0 * fl.speed[:, None] * np.abs(np.sin(phi - ap) + np.sin(ap)) / np.abs(m.dz)
 
 
 def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "cosine"):

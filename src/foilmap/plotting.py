@@ -14,7 +14,7 @@ from .conformal import map_at
 from .evaluate import Analysis, surface_distribution
 from .report import CAUTION
 
-__all__ = ["streamfunction_grid", "plot_section"]
+__all__ = ["streamfunction_grid", "plot_section", "plot_fit"]
 
 
 def streamfunction_grid(analysis: Analysis, i: int = 0, radial: int = 90, angular: int = 361,
@@ -88,4 +88,43 @@ def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "secti
     fig.text(0.5, 0.01, CAUTION, ha="center", va="bottom", fontsize=6.5, wrap=True, color="0.3")
     fig.tight_layout(rect=(0, 0.04, 1, 1))
     fig.savefig(path, dpi=130)
+    plt.close(fig)
+
+
+def plot_fit(coords, fit, path) -> None:
+    """Given and fitted contours overlaid, and the deviation along the chord."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from .fitting import dense_reference
+
+    ref = dense_reference(coords.xy, coords.le_index)
+    fx, fy = fit.fitted_xy[:, 0], fit.fitted_xy[:, 1]
+    fig, (ax, axd) = plt.subplots(2, 1, figsize=(8.0, 6.5), sharex=True,
+                                  gridspec_kw={"height_ratios": [1.2, 1.0]})
+    ax.plot(coords.xy[:, 0], coords.xy[:, 1], "o", ms=2.5, color="#1f618d", label="given points")
+    ax.plot(fx, fy, "-", lw=1.0, color="#b03a2e", label=f"map, N = {len(fit.coefficients)}")
+    ax.set_aspect("equal")
+    ax.legend(frameon=False, fontsize=8)
+    ax.set_ylabel("y / chord")
+    ax.set_title(f"{coords.name}: conformal fit, max deviation {fit.max_deviation:.2e} chords",
+                 fontsize=10)
+    # distance from each fitted point to the given contour, along the chord on each surface
+    from .fitting import contour_distances
+
+    dist = contour_distances(fit.fitted_xy, ref)
+    le = int(np.argmin(np.hypot(fx, fy)))
+    axd.semilogy(fx[: le + 1], np.maximum(dist[: le + 1], 1e-12), lw=1.0, color="#b03a2e",
+                 label="upper")
+    axd.semilogy(fx[le:], np.maximum(dist[le:], 1e-12), lw=1.0, color="#1f618d", label="lower")
+    axd.set_ylim(bottom=max(1e-10, 1e-4 * float(dist.max())))
+    axd.set_xlabel("x / chord")
+    axd.set_ylabel("distance to the given contour, chords")
+    axd.legend(frameon=False, fontsize=8)
+    axd.grid(True, color="0.9")
+    fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=6, color="0.3", wrap=True)
+    fig.tight_layout(rect=(0, 0.04, 1, 1))
+    fig.savefig(path, dpi=120)
     plt.close(fig)

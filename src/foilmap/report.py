@@ -20,6 +20,7 @@ __all__ = [
     "format_number",
     "surface_table_csv",
     "coordinates_text",
+    "xy_lines",
 ]
 
 #: printed in every report and stored in every export
@@ -155,8 +156,14 @@ def surface_table_csv(zc: np.ndarray, upper: np.ndarray, q: np.ndarray, name: st
     return "\n".join(lines) + "\n"
 
 
+def xy_lines(x: np.ndarray, y: np.ndarray) -> str:
+    """Two columns to eight decimals, with no "-0.00000000" for round-off below the last digit."""
+    x = np.where(np.abs(x) < 5e-9, 0.0, x)
+    y = np.where(np.abs(y) < 5e-9, 0.0, y)
+    return "\n".join(f"{a: .8f} {b: .8f}" for a, b in zip(x, y))
+
+
 def coordinates_text(zc: np.ndarray, name: str) -> str:
     """Two-column coordinates: one name line, then x y from the TE over the upper surface."""
     head = f"{name}  (foilmap ideal-flow screening section; verify by viscous analysis and tests)"
-    body = "\n".join(f"{z.real: .8f} {z.imag: .8f}" for z in zc)
-    return head + "\n" + body + "\n"
+    return head + "\n" + xy_lines(zc.real, zc.imag) + "\n"
