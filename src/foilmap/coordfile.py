@@ -12,10 +12,11 @@ Layouts detected:
     either of the above with commas, an optional ``x,y`` header row.
 
 Name lines (the first non-numeric line) and comment lines (``#``, ``!``, ``%``) are skipped.  The
-result is normalised to the chord frame: the leading edge is the point farthest from the
-trailing edge (the midpoint of the two end points), moved to (0, 0), the trailing edge to (1, 0).
-An open trailing edge is reported with its gap and, for the fit, closed by a linear thickness
-ramp ±(gap/2)·x on the two surfaces (common practice: the leading edge does not move).
+result is normalised to the chord frame: the leading edge, farthest from the trailing edge (the
+midpoint of the two end points), is moved to (0, 0), the trailing edge to (1, 0).
+The leading edge is the sample farthest from the trailing edge.  An open trailing edge is
+reported with its gap and, for the fit, closed by a linear thickness ramp ±(gap/2)·x on the two
+surfaces (common practice: the leading edge does not move).
 """
 
 from __future__ import annotations
@@ -189,17 +190,14 @@ def normalise_loop(xy: np.ndarray, name: str, layout: str = "loop",
     hit = _self_intersects(xy)
     if hit is not None:
         _fail(source, f"the contour crosses itself (segment {hit + 1})")
-    # chord frame: LE the point farthest from the TE (refined by a parabola through 3 points)
+    # chord frame: the LE is the point farthest from the TE on the quadratic through the
+    # farthest sample and its neighbours (the sample itself when that is within 1 % of a step)
     z = xy[:, 0] + 1j * xy[:, 1]
     zte = te[0] + 1j * te[1]
-    lo, hi = max(j - 1, 0), min(j + 1, len(z) - 1)
-    zle = z[j]
-    if 0 < j < len(z) - 1:
-        d0, d1, d2 = dist[lo], dist[j], dist[hi]
-        den = d0 - 2 * d1 + d2
-        if den < 0:
-            frac = 0.5 * (d0 - d2) / den
-            zle = z[j] + frac * (z[hi] - z[lo]) / 2 if abs(frac) < 1 else z[j]
+    t = np.linspace(-1.0, 1.0, 2001)
+    zq = z[j] + 0.5 * t * (z[j + 1] - z[j - 1]) + 0.5 * t * t * (z[j + 1] - 2 * z[j] + z[j - 1])
+    tb = float(t[np.argmax(np.abs(zq - zte))])
+    zle = z[j] if abs(tb) <= 0.01 else zq[np.argmax(np.abs(zq - zte))]
     zc = (z - zle) / (zte - zle)
     # orientation: the first half must be the upper surface (counter-clockwise loop)
     area = 0.5 * np.sum(zc.real * np.roll(zc.imag, -1) - np.roll(zc.real, -1) * zc.imag)
@@ -216,9 +214,11 @@ def normalise_loop(xy: np.ndarray, name: str, layout: str = "loop",
         shift[j + 1 :] = 0.5 * gap * zc.real[j + 1 :]
         zc = zc + shift
         zc[0] = zc[-1] = 1.0
-    # the LE itself as a point of the loop
-    if abs(zc[j]) > 1e-12:
-        k = j if zc[j].imag < 0 else j + 1  # insert between the surfaces
+    # the LE as a point of the loop: the farthest sample moved onto it, or inserted beside it
+    if abs(tb) <= 0.01:
+        zc[j] = 0.0
+    else:
+        k = j + 1 if (tb > 0) != rev else j
         zc = np.insert(zc, k, 0.0)
     xy_out = np.column_stack([zc.real, zc.imag])
     return Coordinates(name, xy_out, layout, bool(rev), te_gap, float(np.abs(shift).max()))

@@ -158,7 +158,8 @@ def prepare_folder(study: Study, out: Path, budget: int | None) -> Study:
         budget = old.get("budget", budget)
     else:
         write_text_atomic(sfile, study.text)
-    write_text_atomic(out / OPTIONS_NAME, json.dumps({"budget": budget}))
+    write_text_atomic(out / OPTIONS_NAME, json.dumps({"budget": budget,
+                                                      "base_dir": study.base_dir}))
     (out / "runs").mkdir(exist_ok=True)
     return study.with_budget(budget) if budget is not None else study
 
@@ -174,8 +175,9 @@ def load_folder(out: Path) -> Study:
     sfile = out / STUDY_NAME
     if not sfile.exists():
         raise InputError(f"{str(out)!r} is not a study folder (no {STUDY_NAME})")
-    study = parse_study(sfile.read_text(encoding="utf-8"), str(sfile))
-    budget = _read_options(out).get("budget")
+    opts = _read_options(out)
+    study = parse_study(sfile.read_text(encoding="utf-8"), str(sfile), opts.get("base_dir"))
+    budget = opts.get("budget")
     return study.with_budget(budget) if budget is not None else study
 
 
@@ -202,8 +204,8 @@ def _init_worker(queue) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
 
 
-def _worker(text: str, source: str, budget, run_id: str, out: str) -> dict:
-    study = parse_study(text, source)
+def _worker(text: str, source: str, base_dir: str, budget, run_id: str, out: str) -> dict:
+    study = parse_study(text, source, base_dir)
     if budget is not None:
         study = study.with_budget(budget)
     run = next(r for r in study.runs() if r.run_id == run_id)
@@ -252,8 +254,8 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker,
                                initargs=(queue,))
     try:
-        futures = {pool.submit(_worker, study.text, study.source, budget, r.run_id, str(out)): r
-                   for r in todo}
+        futures = {pool.submit(_worker, study.text, study.source, study.base_dir, budget,
+                               r.run_id, str(out)): r for r in todo}
         for r in todo:
             states[r.run_id] = {"state": "queued"}
         pending = set(futures)

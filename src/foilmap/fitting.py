@@ -47,25 +47,32 @@ class FitResult:
         return self.coefficients[:n].copy()
 
 
-def te_angle_from_points(xy: np.ndarray, le: int, span: float = 0.04) -> float:
+def te_angle_from_points(xy: np.ndarray, le: int, span: float = 0.02) -> float:
     """Trailing-edge interior angle from the points within ``span`` of the TE on each surface.
 
-    A parabola y = b (1 − x) + c (1 − x)² through the TE is fitted by least squares on each
-    surface; τ = atan(b_upper) − atan(b_lower), at least zero.
+    Near a Kármán–Trefftz trailing edge a surface is y = b d + c d^{1+1/k} + e d² + … with
+    d = 1 − x (the map's expansion in (z₁ − 1)^k); the three terms are fitted by least squares
+    on each surface and τ = atan(b_upper) − atan(b_lower), iterated twice on k = 2 − τ/π.  For an
+    analytic trailing edge (a formula section) the middle term simply comes out small.
     """
-    def slope(pts):
+    def slope(pts, k):
         sel = pts[(1.0 - pts[:, 0]) <= span]
-        if sel.shape[0] < 3:
-            sel = pts[np.argsort(1.0 - pts[:, 0])[:4]]
+        if sel.shape[0] < 5:
+            sel = pts[np.argsort(1.0 - pts[:, 0])[:6]]
+        sel = sel[(1.0 - sel[:, 0]) > 0]
         d = 1.0 - sel[:, 0]
-        a = np.column_stack([d, d * d])
+        a = np.column_stack([d, d ** (1.0 + 1.0 / k), d * d])
         b, *_ = np.linalg.lstsq(a, sel[:, 1], rcond=None)
         return b[0]
 
     up = xy[: le + 1]
     lo = xy[le:]
-    tau = np.arctan(slope(up)) - np.arctan(slope(lo))
-    return float(max(tau, 0.0))
+    k = 2.0
+    tau = 0.0
+    for _ in range(3):
+        tau = max(float(np.arctan(slope(up, k)) - np.arctan(slope(lo, k))), 0.0)
+        k = 2.0 - tau / np.pi
+    return tau
 
 
 def _contour_spline(xy: np.ndarray, le: int):
@@ -80,7 +87,8 @@ def _contour_spline(xy: np.ndarray, le: int):
 
 
 def fit_coordinates(xy: np.ndarray, le: int, samples: int = 2048, tol: float = 1e-13,
-                    max_iter: int = 400, te_angle: float | None = None) -> FitResult:
+                    max_iter: int = 400, te_angle: float | None = None,
+                    singular_point: complex | None = None) -> FitResult:
     """Theodorsen–Garrick fit of a closed chord-frame contour (TE → upper → LE → lower → TE).
 
     Parameters
@@ -91,6 +99,11 @@ def fit_coordinates(xy: np.ndarray, le: int, samples: int = 2048, tol: float = 1
         Circle-plane samples (a power of two); coefficients up to samples/2 − 1 are found.
     te_angle : float, optional
         τ in radians; measured from the points by default.
+    singular_point : complex, optional
+        Chord-frame position of the second singular point (z = −k); by default midway between
+        the LE and its centre of curvature.  The map of a section is unique once this point is
+        fixed, so a section made by the map is recovered coefficient by coefficient when it is
+        given where that map had it.
     """
     from scipy.interpolate import CubicSpline
 
@@ -103,7 +116,8 @@ def fit_coordinates(xy: np.ndarray, le: int, samples: int = 2048, tol: float = 1
     zc = 0.5 * (1.0 + np.cos(u)) + 1j * spl(u)
     # LE radius of the (x(u), y(u)) curve at u = π: ρ = 2 (dy/du)² (x' = 0, x'' = ½ there)
     rho = 2.0 * float(spl(np.pi, 1)) ** 2
-    p_s = 0.5 * rho  # midway between the LE and its centre of curvature, on the chord line
+    # midway between the LE and its centre of curvature, on the chord line
+    p_s = 0.5 * rho if singular_point is None else complex(singular_point)
     z = k * (2.0 * (zc - p_s) / (1.0 - p_s) - 1.0)
     w = (z - k) / (z + k)
     arg = np.unwrap(np.angle(w)) / k

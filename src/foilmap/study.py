@@ -66,8 +66,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
     },
     "shape": {
         "coefficients": Key("int", 6, "number N of shape-series coefficients A_1..A_N", 1, 32),
-        "start": Key("pairs", [[-0.09, 0.03]],
-                     "starting A_1, A_2, ... as [real, imag] pairs (missing ones are 0)", -1.0, 1.0),
+        "start": Key("start", [[-0.09, 0.03]],
+                     "starting A_1, A_2, ... as [real, imag] pairs (missing ones are 0), or the "
+                     "path of a section file or a coordinates file (fitted)", -1.0, 1.0),
         "step": Key("float", 0.02, "initial search step of A_1's components; A_n gets step/n",
                     1e-6, 0.5),
         "limit": Key("float", 0.15, "bound on |component of A_n - start_n|, divided by n",
@@ -158,7 +159,11 @@ def _check(where: str, path: str, key: Key, v):
             _fail(where, f"{path} = {v!r} is not allowed ([low, high] with low <= high, "
                          f"each from {rng})")
         return [float(v[0]), float(v[1])]
-    if key.kind == "pairs":
+    if key.kind == "start" and isinstance(v, str):
+        if not v.strip():
+            _fail(where, f"{path} = {v!r} is not allowed (pairs, or a file path)")
+        return v
+    if key.kind in ("pairs", "start"):
         ok = isinstance(v, list) and 1 <= len(v) <= 64 and all(
             isinstance(p, list) and len(p) == 2 and all(_num(x) and lo <= x <= hi for x in p)
             for p in v)
@@ -239,6 +244,7 @@ class Study:
     variants: tuple[tuple[str, dict], ...]
     text: str = field(repr=False)
     source: str = "<text>"
+    base_dir: str = "."  # folder that relative paths in the study (shape.start) are read from
 
     def runs(self) -> list[RunSpec]:
         """Expand into runs: variants × points × seeds, in that order."""
@@ -259,12 +265,20 @@ class Study:
             (n, {**o, "search": {**o.get("search", {}), "max_evaluations": int(evals)}})
             for n, o in self.variants)
         return Study(self.name, self.description, self.seeds, self.shape, self.points,
-                     self.objectives, self.constraints, search, variants, self.text, self.source)
+                     self.objectives, self.constraints, search, variants, self.text, self.source,
+                     self.base_dir)
 
 
-def parse_study(text: str, source: str = "<text>") -> Study:
-    """Parse and validate a study file's text; raises :class:`InputError` with one line."""
+def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
+    """Parse and validate a study file's text; raises :class:`InputError` with one line.
+
+    Relative paths in the study (``shape.start``) are read from ``base_dir``, by default the
+    study file's folder (or the working folder for text without a file).
+    """
     where = repr(source)
+    if base_dir is None:
+        src = Path(source)
+        base_dir = str(src.parent.resolve()) if src.is_file() else str(Path.cwd())
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -328,16 +342,47 @@ def parse_study(text: str, source: str = "<text>") -> Study:
         _fail(where, "variant names must be distinct")
     if not variants:
         variants = [("", {})]
+    _resolve_start(where, "shape.start", shape, base_dir)
+    for i, (_, over) in enumerate(variants, start=1):
+        if "start" in over.get("shape", {}):
+            _resolve_start(where, f"variant[{i}].shape.start", over["shape"], base_dir)
     study = Study(st["name"], st["description"], tuple(st["seeds"]), shape, tuple(points),
-                  objectives, cons, search, tuple(variants), text, source)
+                  objectives, cons, search, tuple(variants), text, source, base_dir)
     for run in study.runs():
         _check_shape(where, run)
     return study
 
 
+def _resolve_start(where: str, path: str, shape: dict, base_dir: str) -> None:
+    """Read a start given as a file: a section file, or a coordinates file to fit.
+
+    The coefficients go to ``start_pairs`` (all of them: a run keeps its first N) and the
+    section's trailing-edge angle to ``start_te_angle_deg``.
+    """
+    start = shape["start"]
+    if not isinstance(start, str):
+        return
+    from .coordfile import load_coordinates
+    from .fitting import fit_section
+    from .sectionfile import load_section
+
+    file = Path(base_dir) / start
+    if not file.is_file():
+        _fail(where, f"{path} = {start!r}: no such file (looked in {base_dir})")
+    if file.suffix.lower() == ".toml":
+        rec = load_section(file)
+        coeffs, tau = rec.coefficients, rec.te_angle_deg
+    else:
+        coords = load_coordinates(file)
+        fit = fit_section(coords.xy, coords.le_index, 32)
+        coeffs, tau = fit.coefficients, math.degrees(fit.te_angle)
+    shape["start_pairs"] = [[float(a.real), float(a.imag)] for a in coeffs]
+    shape["start_te_angle_deg"] = float(tau)
+
+
 def _check_shape(where: str, run: RunSpec) -> None:
     n = run.shape["coefficients"]
-    if len(run.shape["start"]) > n:
+    if not isinstance(run.shape["start"], str) and len(run.shape["start"]) > n:
         _fail(where, f"shape.start has {len(run.shape['start'])} pairs but shape.coefficients "
                      f"= {n} (run {run.run_id})")
 
@@ -366,14 +411,19 @@ class Parametrisation:
     limit: float
     tau_range: tuple[float, float]  # radians
 
+    start_tau: float | None = None  # radians, the starting section's own angle if given
+
     @classmethod
     def from_shape(cls, shape: dict) -> "Parametrisation":
         n = shape["coefficients"]
         start = np.zeros(n, dtype=complex)
-        for i, (a, b) in enumerate(shape["start"]):
+        pairs = shape.get("start_pairs") or shape["start"]
+        for i, (a, b) in enumerate(pairs[:n]):  # coefficients beyond N are dropped
             start[i] = complex(a, b)
         lo, hi = shape["te_angle_deg"]
-        return cls(n, start, shape["step"], shape["limit"], (math.radians(lo), math.radians(hi)))
+        tau0 = shape.get("start_te_angle_deg")
+        return cls(n, start, shape["step"], shape["limit"], (math.radians(lo), math.radians(hi)),
+                   None if tau0 is None else math.radians(tau0))
 
     @property
     def tau_free(self) -> bool:
@@ -384,9 +434,12 @@ class Parametrisation:
         return 2 * self.n + (1 if self.tau_free else 0)
 
     def x0(self) -> np.ndarray:
+        """The start: the start coefficients and the starting section's τ (else mid-range)."""
         y = np.zeros(self.dimension)
         if self.tau_free:
-            y[-1] = 0.5
+            lo, hi = self.tau_range
+            y[-1] = 0.5 if self.start_tau is None else float(
+                np.clip((self.start_tau - lo) / (hi - lo), 0.0, 1.0))
         return y
 
     def bounds(self) -> tuple[list, list]:
