@@ -50,7 +50,8 @@ restarts = 1
 
 REPRODUCIBLE = ("evals/x", "evals/f", "evals/objectives", "evals/constraints", "evals/status",
                 "evals/generation", "gen/evaluations", "gen/restart", "gen/popsize", "gen/sigma",
-                "gen/mean", "gen/best_f", "gen/best_index", "gen/feasible_fraction")
+                "gen/mean", "gen/best_f", "gen/best_index", "gen/feasible_fraction",
+                "gen/hypervolume", "gen/front_offset", "gen/front_size")
 
 
 def logs_equal(a: Path, b: Path) -> None:
@@ -60,6 +61,7 @@ def logs_equal(a: Path, b: Path) -> None:
         xa, xb = getattr(la, grp)[key], getattr(lb, grp)[key]
         assert xa.shape == xb.shape, name
         assert np.array_equal(xa, xb, equal_nan=True), name  # bit for bit
+    assert np.array_equal(la.front_index, lb.front_index)
 
 
 def one_run(tmp_path, name, budget=None, text=STUDY):
@@ -99,7 +101,7 @@ def test_log_schema_is_documented_and_complete(tmp_path):
     with h5py.File(path, "r") as f:
         f.visititems(lambda name, obj: found.add(name) if isinstance(obj, h5py.Dataset) else None)
         attrs = set(f.attrs)
-        assert f.attrs["schema_version"] == "1.0"
+        assert f.attrs["schema_version"] == "1.1"
         assert f["evals/x"].compression == "gzip"
         assert f["evals/x"].chunks[0] == f.attrs["chunk_rows"]
         study_text = f["study_text"].asstr()[()]

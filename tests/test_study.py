@@ -72,7 +72,7 @@ BAD = [
      "objective stratford_margin needs 'reynolds' at point 'a'"),
     (BASE + "[constraints]\nmin_thickness = 'thick'\n", "constraints.min_thickness = 'thick' is not allowed"),
     (BASE + "[constraints]\ncm = [0.1]\n", "constraints.cm = [0.1] is not allowed"),
-    (BASE + "[search]\nmethod = 'random'\n", "search.method = 'random' is not allowed (one of: cmaes)"),
+    (BASE + "[search]\nmethod = 'random'\n", "search.method = 'random' is not allowed (one of: cmaes, comocma, epsilon)"),
     (BASE + "[search]\nmax_evaluations = 5\n", "search.max_evaluations = 5 is not allowed"),
     (BASE + "[[variant]]\nname = 'v'\nflow = { cl = 1 }\n", "unknown key 'variant[1].flow'"),
     (BASE + "[[variant]]\nname = 'v'\nshape = { n = 1 }\n", "unknown key 'variant[1].shape.n'"),

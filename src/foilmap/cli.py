@@ -330,6 +330,68 @@ def cmd_fit(args) -> int:
     return EXIT_OK
 
 
+def _reference(text: str | None):
+    if text is None:
+        return None
+    try:
+        vals = [float(v) for v in text.split(",")]
+    except ValueError:
+        raise InputError(f"--reference {text!r} is not a comma-separated list of numbers") from None
+    if not all(math.isfinite(v) for v in vals):
+        raise InputError(f"--reference {text!r} holds a non-finite number")
+    return vals
+
+
+def cmd_fronts(args) -> int:
+    from .frontreport import collect_fronts, compare_fronts, format_fronts, fronts_csv, plot_fronts
+    from .sectionfile import write_text_atomic
+
+    png = _png_target(args.output, "fronts") if args.output else None
+    fronts = collect_fronts(args.paths)
+    res = compare_fronts(fronts, _reference(args.reference))
+    print(json.dumps(res, indent=1) if args.json else format_fronts(res))
+    if args.csv:
+        write_text_atomic(args.csv, fronts_csv(fronts, res))
+        if not args.json:
+            print(f"front designs written to {args.csv}")
+    if png is not None:
+        if args.json:
+            plot_fronts(fronts, res, png)
+        else:
+            _write_png(png, lambda tmp: plot_fronts(fronts, res, tmp))
+    return EXIT_OK
+
+
+def cmd_pick(args) -> int:
+    from .frontreport import pick_design
+    from .report import CAUTION
+    from .sectionfile import format_section, write_text_atomic
+
+    nearest = None
+    if args.nearest is not None:
+        nearest = {}
+        for part in args.nearest.split(","):
+            name, _, val = part.partition("=")
+            try:
+                nearest[name.strip()] = float(val)
+            except ValueError:
+                raise InputError(f"--nearest {args.nearest!r}: write NAME=VALUE pairs separated "
+                                 "by commas, for example peak_suction=0.8,severity=0.4") from None
+    sec, info = pick_design(Path(args.folder), nearest=nearest, knee=args.knee, index=args.index,
+                            run=args.run)
+    spec = info["spec"]
+    prov = {"run": info["run"], "evaluation": info["evaluation"], "design": info["id"],
+            "design_cl": spec.point.cl,
+            **{f"objective_{k}": v for k, v in info["objectives"].items()}}
+    write_text_atomic(args.output, format_section(f"{info['run']}-{info['evaluation']}",
+                                                  sec.coefficients[0], info["te_angle_deg"],
+                                                  prov))
+    vals = ", ".join(f"{k} {v:.6g}" for k, v in info["objectives"].items())
+    print(f"design {info['id']} ({vals}) written to {args.output}")
+    print(CAUTION)
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="foilmap", description=(
         "Search and evaluate aerofoil and hydrofoil sections by generalised conformal maps. "
@@ -418,6 +480,25 @@ def build_parser() -> argparse.ArgumentParser:
     ft.add_argument("--report", metavar="FILE.png",
                     help="overlay of given and fitted contours with the deviation along the chord")
     ft.set_defaults(func=cmd_fit)
+
+    fr = sub.add_parser("fronts", help="compare the Pareto fronts of runs and studies")
+    fr.add_argument("paths", nargs="+", metavar="DIR_OR_RUN", help="study folders or run logs")
+    fr.add_argument("--reference", metavar="R1,R2[,R3]",
+                    help="common hypervolume reference point (default: the studies' own)")
+    fr.add_argument("--json", action="store_true", help="print one JSON object")
+    fr.add_argument("--csv", metavar="FILE", help="one row per front design")
+    fr.add_argument("-o", "--output", metavar="FILE.png", help="figure of fronts and statistics")
+    fr.set_defaults(func=cmd_fronts)
+
+    pk = sub.add_parser("pick", help="a design from a study's front as a section file")
+    pk.add_argument("folder", help="study folder")
+    how = pk.add_mutually_exclusive_group(required=True)
+    how.add_argument("--nearest", metavar="F1=V1,F2=V2", help="nearest to these objective values")
+    how.add_argument("--knee", action="store_true", help="the knee of the front")
+    how.add_argument("--index", metavar="K_OR_ID", help="position in the merged front, or RUN#EVAL")
+    pk.add_argument("--run", metavar="ID", help="only this run's front")
+    pk.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
+    pk.set_defaults(func=cmd_pick)
     return p
 
 

@@ -17,7 +17,7 @@ from .geometry import thickness_at
 from .status import Status
 from .study import Parametrisation, Point, RunSpec, Study
 
-__all__ = ["Problem", "Outcome", "INVALID_CONSTRAINT"]
+__all__ = ["Problem", "Outcome", "INVALID_CONSTRAINT", "front_vectors"]
 
 #: constraint value given to every constraint of a candidate with an invalid shape
 INVALID_CONSTRAINT = 1.0
@@ -44,12 +44,15 @@ class Problem:
     constraints: dict
     points: int
     proxy_end: float
+    epsilon: float | None = None  # ε-constraint run: objective 2 ≤ ε, minimise objective 1
+    reference_point: tuple[float, ...] | None = None
 
     @classmethod
     def from_run(cls, study: Study, run: RunSpec) -> "Problem":
         return cls(Parametrisation.from_shape(run.shape), run.point,
                    tuple(study.objectives.items()), dict(study.constraints),
-                   run.search["points"], run.search["proxy_end"])
+                   run.search["points"], run.search["proxy_end"], run.epsilon,
+                   study.reference_point)
 
     @property
     def objective_names(self) -> list[str]:
@@ -63,7 +66,10 @@ class Problem:
                  "thickness_x_high": 0.05, "min_le_radius": 0.002,
                  "min_te_angle": math.radians(1.0), "cm_low": 0.01, "cm_high": 0.01,
                  "max_peak_suction": 0.1}
-        return np.array([scale.get(n, 0.005) for n in self.constraint_names])
+        out = [scale.get(n, 0.005) for n in self.constraint_names]
+        if self.epsilon is not None:
+            out[-1] = max(0.05 * abs(self.epsilon), 1e-3)
+        return np.array(out)
 
     @property
     def constraint_names(self) -> list[str]:
@@ -85,6 +91,8 @@ class Problem:
             names.append(f"thickness_at_{x:g}")
         if "max_peak_suction" in c:
             names.append("max_peak_suction")
+        if self.epsilon is not None:
+            names.append(f"epsilon_{self.objective_names[1]}")
         return names
 
     def _proxies(self) -> tuple[str, ...]:
@@ -122,8 +130,12 @@ class Problem:
         }
         obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
         weights = np.array([w for _, w in self.objectives])
-        f = obj @ weights
         g = self._constraints(ev, an, peak)
+        if self.epsilon is not None:  # minimise the first objective, bound the second
+            f = obj[:, 0].copy()
+            g = np.concatenate([g, (obj[:, 1] - self.epsilon)[:, None]], axis=1)
+        else:
+            f = obj @ weights
         finite = np.isfinite(f) & np.all(np.isfinite(g), axis=1)
         status = np.where((status == Status.OK) & ~finite, Status.NON_FINITE, status)
         status = status.astype(np.int8)
@@ -178,3 +190,24 @@ class Problem:
             f[:] = 1000.0
         g[~ok] = INVALID_CONSTRAINT
         return f, g
+
+
+def front_vectors(problem: Problem, out: Outcome) -> np.ndarray:
+    """Objective vectors for a multi-objective search, penalised where infeasible, (B, K).
+
+    Feasible: the raw objectives.  Valid but infeasible: each objective plus 10 × the sum of the
+    positive scaled constraint violations (a documented penalty; COMO-CMA-ES has no constraint
+    handling of its own).  Invalid shape: the reference point plus 1 + |reference| in every
+    objective, beyond every point that counts.
+    """
+    ref = np.asarray(problem.reference_point, dtype=float)
+    obj = out.objectives.copy()
+    nb = obj.shape[0]
+    if out.constraints.shape[1]:
+        viol = np.maximum(out.constraints / problem.constraint_scales, 0.0).sum(axis=1)
+    else:
+        viol = np.zeros(nb)
+    ok = out.status == Status.OK
+    vec = obj + 10.0 * viol[:, None]
+    vec[~ok] = ref + 1.0 + np.abs(ref)
+    return vec

@@ -39,7 +39,7 @@ __all__ = [
     "GEN_FIELDS",
 ]
 
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = "1.1"
 STATE_RUNNING, STATE_COMPLETE, STATE_FAILED = 0, 1, 2
 STATE_NAMES = {STATE_RUNNING: "running", STATE_COMPLETE: "complete", STATE_FAILED: "failed"}
 _LIBVER = ("v110", "v110")
@@ -53,7 +53,7 @@ UNITS = {
 EVAL_FIELDS = ("x", "f", "objectives", "constraints", "status", "generation")
 #: per-generation datasets
 GEN_FIELDS = ("evaluations", "restart", "popsize", "sigma", "mean", "best_f", "best_index",
-              "feasible_fraction", "time")
+              "feasible_fraction", "time", "hypervolume", "front_offset", "front_size")
 
 
 def _create(grp, name, shape_tail, dtype, chunk_rows):
@@ -88,6 +88,10 @@ class Generation:
     best_index: int  # evaluation index of it (−1: none)
     feasible_fraction: float
     time: float  # seconds since the run started (not part of the reproducible record)
+    front_index: np.ndarray = None  # evaluation indices of the non-dominated feasible archive
+    hypervolume: float = float("nan")  # of the archive against the study's reference point
+    front_offset: int = 0  # set by the writer: where this generation's archive starts
+    front_size: int = 0
 
 
 class RunLogWriter:
@@ -99,6 +103,7 @@ class RunLogWriter:
         # dataset handles looked up once: a group lookup costs more than a small write
         self._ev = {k: h5file["evals"][k] for k in EVAL_FIELDS}
         self._gen = {k: h5file["gen"][k] for k in GEN_FIELDS}
+        self._front = h5file["front/index"]
 
     @classmethod
     def create(cls, path: str | Path, *, attrs: dict, study_text: str, dimension: int,
@@ -129,8 +134,10 @@ class RunLogWriter:
                                    ("popsize", (), "i4"), ("sigma", (), "f8"),
                                    ("mean", (dimension,), "f8"), ("best_f", (), "f8"),
                                    ("best_index", (), "i8"), ("feasible_fraction", (), "f8"),
-                                   ("time", (), "f8")):
+                                   ("time", (), "f8"), ("hypervolume", (), "f8"),
+                                   ("front_offset", (), "i8"), ("front_size", (), "i4")):
                 _create(gen, name, tail, dt, 64)
+            _create(f.create_group("front"), "index", (), "i8", 256)
             meta = f.create_group("meta")
             meta.create_dataset("state", data=np.array([STATE_RUNNING], dtype="i1"))
             meta.create_dataset("finished", data=np.array([np.nan]))
@@ -169,6 +176,10 @@ class RunLogWriter:
             for name, arr in old.gen.items():
                 ds = _create(gen, name, arr.shape[1:], arr.dtype, 64)
                 _append(ds, arr[:generations])
+            n_front = (int(old.gen["front_offset"][generations - 1] + old.gen["front_size"]
+                           [generations - 1]) if generations else 0)
+            ds = _create(f.create_group("front"), "index", (), "i8", 256)
+            _append(ds, old.front_index[:n_front])
             meta = f.create_group("meta")
             meta.create_dataset("state", data=np.array([STATE_RUNNING], dtype="i1"))
             meta.create_dataset("finished", data=np.array([np.nan]))
@@ -201,6 +212,14 @@ class RunLogWriter:
         _append(ev["constraints"], cat([g.constraints for g in gens]))
         _append(ev["status"], cat([g.status for g in gens]))
         _append(ev["generation"], cat([np.full(g.x.shape[0], g.generation) for g in gens]))
+        offset = self._front.shape[0]
+        for g in gens:
+            members = np.zeros(0, dtype=np.int64) if g.front_index is None else g.front_index
+            g.front_offset, g.front_size = offset, int(members.size)
+            offset += members.size
+        _append(self._front, np.concatenate(
+            [np.zeros(0, dtype=np.int64)] + [g.front_index for g in gens
+                                             if g.front_index is not None]))
         for name in GEN_FIELDS:
             _append(gen[name], [getattr(g, name) for g in gens])
         self.f.flush()
@@ -235,6 +254,16 @@ class RunLog:
     state: int
     finished: float
     resumes: int
+    front_index: np.ndarray = None  # all generations' archives, concatenated
+
+    def front(self, generation: int | None = None) -> np.ndarray:
+        """Evaluation indices of the non-dominated feasible archive after a generation
+        (default: the last), shape (M,)."""
+        if not self.generations or self.front_index is None:
+            return np.zeros(0, dtype=np.int64)
+        g = self.generations - 1 if generation is None else generation - 1
+        o, n = int(self.gen["front_offset"][g]), int(self.gen["front_size"][g])
+        return self.front_index[o : o + n]
 
     @property
     def objective_names(self) -> list[str]:
@@ -287,13 +316,18 @@ def read_run(path: str | Path) -> RunLog:
         for k in f["evals"]:
             f["evals"][k].refresh()
             evals[k] = f["evals"][k][:ne]
+        front = None
+        if "front" in f:
+            f["front/index"].refresh()
+            nf = int(gen["front_offset"][-1] + gen["front_size"][-1]) if ng else 0
+            front = f["front/index"][:nf]
         meta = f["meta"]
         for k in meta:
             meta[k].refresh()
         attrs = {k: (v.decode() if isinstance(v, bytes) else v) for k, v in f.attrs.items()}
         return RunLog(path, attrs, f["study_text"].asstr()[()], evals, gen,
                       int(meta["state"][0]), float(meta["finished"][0]),
-                      int(meta["resumes"][0]))
+                      int(meta["resumes"][0]), front)
 
 
 _LAST_FSYNC: dict[str, float] = {}

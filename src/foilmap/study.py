@@ -102,7 +102,12 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "max_peak_suction": Key("float", None, "largest -Cp_min over the evaluated Cl", 0.0, 100.0),
     },
     "search": {
-        "method": Key("choice", "cmaes", "search method", choices=("cmaes",)),
+        "method": Key("choice", "cmaes", "search method: cmaes (one weighted objective), comocma "
+                      "(a Pareto front of 2-3 objectives), epsilon (sweeps of cmaes runs)",
+                      choices=("cmaes", "comocma", "epsilon")),
+        "kernels": Key("int", 8, "COMO-CMA-ES kernels (points the front is followed with)", 2, 200),
+        "epsilon_levels": Key("floats", None, "epsilon: bounds on the second objective, one "
+                              "single-objective run (minimising the first) per level", -1e6, 1e6),
         "max_evaluations": Key("int", 3000, "evaluation budget of each run", 10, 10**8),
         "popsize": Key("int", 0, "population size (0: CMA-ES default 4 + 3 ln D)", 0, 100000),
         "restarts": Key("int", 2, "IPOP restarts, each doubling the population", 0, 20),
@@ -110,8 +115,12 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "proxy_end": Key("float", 0.9, "chord station where the recovery proxies stop", 0.5, 1.0),
     },
 }
+SCHEMA["fronts"] = {
+    "reference_point": Key("floats", None, "hypervolume reference point, one value per objective "
+                           "in the order of [objectives]", -1e6, 1e6),
+}
 _VARIANT_TABLES = ("shape", "search")
-_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant")
+_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant", "fronts")
 
 
 def _fail(where: str, msg: str):
@@ -159,6 +168,12 @@ def _check(where: str, path: str, key: Key, v):
             _fail(where, f"{path} = {v!r} is not allowed ([low, high] with low <= high, "
                          f"each from {rng})")
         return [float(v[0]), float(v[1])]
+    if key.kind == "floats":
+        ok = isinstance(v, list) and 1 <= len(v) <= 1000 and all(_num(x) and lo <= x <= hi
+                                                               for x in v)
+        if not ok:
+            _fail(where, f"{path} = {v!r} is not allowed (a list of numbers from {rng})")
+        return [float(x) for x in v]
     if key.kind == "start" and isinstance(v, str):
         if not v.strip():
             _fail(where, f"{path} = {v!r} is not allowed (pairs, or a file path)")
@@ -219,7 +234,8 @@ class Point:
 
 @dataclass(frozen=True)
 class RunSpec:
-    """One run of a study: one search with one seed at one point for one variant."""
+    """One run of a study: one search with one seed at one point for one variant (and, in an
+    ε-constraint sweep, one bound on the second objective)."""
 
     run_id: str
     seed: int
@@ -227,6 +243,14 @@ class RunSpec:
     variant: str
     shape: dict
     search: dict
+    epsilon: float | None = None
+    epsilon_index: int | None = None
+
+    @property
+    def front_key(self) -> str:
+        """Runs with the same key form one front (an ε sweep's levels merge into one)."""
+        base = f"{self.point.name}.{self.variant}" if self.variant else self.point.name
+        return f"{base}.s{self.seed}"
 
 
 @dataclass(frozen=True)
@@ -245,6 +269,7 @@ class Study:
     text: str = field(repr=False)
     source: str = "<text>"
     base_dir: str = "."  # folder that relative paths in the study (shape.start) are read from
+    reference_point: tuple[float, ...] | None = None  # [fronts] reference_point
 
     def runs(self) -> list[RunSpec]:
         """Expand into runs: variants × points × seeds, in that order."""
@@ -252,10 +277,16 @@ class Study:
         for vname, over in self.variants:
             shape = {**self.shape, **over.get("shape", {})}
             search = {**self.search, **over.get("search", {})}
+            levels = search.get("epsilon_levels") if search["method"] == "epsilon" else None
             for p in self.points:
                 for s in self.seeds:
-                    rid = f"{p.name}.{vname}.s{s}" if vname else f"{p.name}.s{s}"
-                    out.append(RunSpec(rid, s, p, vname, shape, search))
+                    base = f"{p.name}.{vname}" if vname else p.name
+                    if levels:
+                        for i, eps in enumerate(levels):
+                            out.append(RunSpec(f"{base}.e{i}.s{s}", s, p, vname, shape, search,
+                                               eps, i))
+                    else:
+                        out.append(RunSpec(f"{base}.s{s}", s, p, vname, shape, search))
         return out
 
     def with_budget(self, evals: int) -> "Study":
@@ -266,7 +297,7 @@ class Study:
             for n, o in self.variants)
         return Study(self.name, self.description, self.seeds, self.shape, self.points,
                      self.objectives, self.constraints, search, variants, self.text, self.source,
-                     self.base_dir)
+                     self.base_dir, self.reference_point)
 
 
 def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
@@ -342,12 +373,32 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) 
         _fail(where, "variant names must be distinct")
     if not variants:
         variants = [("", {})]
+    fr = _table(where, "fronts", data.get("fronts"), SCHEMA["fronts"])
+    ref = fr["reference_point"]
+    if ref is not None and len(ref) != len(objectives):
+        _fail(where, f"fronts.reference_point has {len(ref)} values but [objectives] names "
+                     f"{len(objectives)} ({', '.join(objectives)})")
+    for vname, over in [("", {})] + variants:
+        srch = {**search, **over.get("search", {})}
+        tag = f"variant {vname!r}: " if vname else ""
+        if srch["method"] in ("comocma", "epsilon") and not 2 <= len(objectives) <= 3:
+            _fail(where, f"{tag}search.method = {srch['method']!r} needs 2 or 3 objectives in "
+                         f"[objectives], not {len(objectives)}")
+        if srch["method"] == "comocma" and ref is None:
+            _fail(where, f"{tag}search.method = 'comocma' needs fronts.reference_point")
+        if srch["method"] == "epsilon":
+            if len(objectives) != 2:
+                _fail(where, f"{tag}search.method = 'epsilon' sweeps the second of exactly 2 "
+                             "objectives")
+            if not srch.get("epsilon_levels"):
+                _fail(where, f"{tag}search.method = 'epsilon' needs search.epsilon_levels")
     _resolve_start(where, "shape.start", shape, base_dir)
     for i, (_, over) in enumerate(variants, start=1):
         if "start" in over.get("shape", {}):
             _resolve_start(where, f"variant[{i}].shape.start", over["shape"], base_dir)
     study = Study(st["name"], st["description"], tuple(st["seeds"]), shape, tuple(points),
-                  objectives, cons, search, tuple(variants), text, source, base_dir)
+                  objectives, cons, search, tuple(variants), text, source, base_dir,
+                  None if ref is None else tuple(ref))
     for run in study.runs():
         _check_shape(where, run)
     return study

@@ -1,0 +1,363 @@
+"""Comparing Pareto fronts across runs and studies, and picking designs from them.
+
+A *front* is the non-dominated feasible archive a run log holds (the runs of an ε-constraint
+sweep that share point, variant and seed are merged into one).  Runs group by study, point and
+variant; the runs of a group differ by seed.  Hypervolumes use one common reference point for
+every run, and points beyond it are refused rather than silently scored zero.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .engine import STUDY_NAME, load_folder, run_paths
+from .errors import InputError
+from .fronts import (
+    FrontError,
+    epsilon_additive,
+    hypervolume,
+    knee_index,
+    median_attainment,
+    merge_archive,
+)
+from .runlog import read_run
+from .study import Parametrisation, RunSpec, Study
+
+__all__ = ["RunFront", "collect_fronts", "compare_fronts", "format_fronts", "fronts_csv",
+           "plot_fronts", "pick_design"]
+
+
+@dataclass
+class RunFront:
+    """The front of one run (or one merged ε sweep)."""
+
+    group: str
+    run: str  # run id, or the sweep's front key
+    study: Study
+    specs: list[RunSpec]
+    objective_names: list[str]
+    ids: list[str]  # "RUN#EVALUATION" per design
+    objectives: np.ndarray  # (M, K)
+    variables: np.ndarray  # (M, D)
+    evaluations: np.ndarray  # history: evaluations after each generation
+    hv_history: np.ndarray  # history: logged hypervolume (NaN for merged sweeps)
+    reference_point: tuple | None
+
+
+def _group_name(study: Study, spec: RunSpec) -> str:
+    g = f"{study.name}:{spec.point.name}"
+    return f"{g}.{spec.variant}" if spec.variant else g
+
+
+def _folder_of(path: Path) -> Path:
+    """The study folder of a study folder or of one of its run logs."""
+    if path.is_dir():
+        return path
+    if path.suffix == ".h5" and path.parent.name == "runs":
+        return path.parent.parent
+    raise InputError(f"{str(path)!r} is neither a study folder nor a run log (runs/ID.h5)")
+
+
+def collect_fronts(paths: list[str]) -> list[RunFront]:
+    """The fronts of the given study folders and run logs."""
+    fronts: list[RunFront] = []
+    seen = set()
+    for raw in paths:
+        p = Path(raw)
+        if not p.exists():
+            raise InputError(f"{raw!r} does not exist")
+        folder = _folder_of(p)
+        if not (folder / STUDY_NAME).exists():
+            raise InputError(f"{str(folder)!r} is not a study folder (no {STUDY_NAME})")
+        study = load_folder(folder)
+        runs = study.runs()
+        if p.is_file():
+            runs = [r for r in runs if run_paths(folder, r.run_id)[0].resolve() == p.resolve()]
+            if not runs:
+                raise InputError(f"{raw!r} is not a run of the study in {str(folder)!r}")
+        by_key: dict[str, list[RunSpec]] = {}
+        for r in runs:
+            by_key.setdefault(r.front_key if r.epsilon is not None else r.run_id, []).append(r)
+        for key, specs in by_key.items():
+            ident = (str(folder.resolve()), key)
+            if ident in seen:
+                continue
+            seen.add(ident)
+            f = _front_of(folder, study, key, specs)
+            if f is not None:
+                fronts.append(f)
+    if not fronts:
+        raise InputError("no run logs found in " + ", ".join(repr(p) for p in paths))
+    return fronts
+
+
+def _front_of(folder: Path, study: Study, key: str, specs: list[RunSpec]) -> RunFront | None:
+    ids, objs, xs = [], [], []
+    evals_hist, hv_hist, names = None, None, None
+    for r in specs:
+        path = run_paths(folder, r.run_id)[0]
+        if not path.exists():
+            continue
+        log = read_run(path)
+        names = log.objective_names
+        fr = log.front()
+        ids += [f"{r.run_id}#{int(i)}" for i in fr]
+        objs.append(log.evals["objectives"][fr])
+        xs.append(log.evals["x"][fr])
+        if len(specs) == 1:
+            evals_hist = log.gen["evaluations"]
+            hv_hist = log.gen.get("hypervolume", np.full(log.generations, np.nan))
+    if names is None:
+        return None
+    obj = np.concatenate(objs) if objs else np.zeros((0, len(names)))
+    x = np.concatenate(xs) if xs else np.zeros((0, 0))
+    if len(specs) > 1 and obj.shape[0]:  # merge the sweep's levels into one front
+        order = np.arange(obj.shape[0])
+        keep_idx, _ = merge_archive(np.zeros(0, dtype=np.int64),
+                                    np.zeros((0, obj.shape[1])), order, obj)
+        ids = [ids[i] for i in keep_idx]
+        obj, x = obj[keep_idx], x[keep_idx]
+    if evals_hist is None:
+        evals_hist, hv_hist = np.zeros(0), np.zeros(0)
+    order = np.argsort(obj[:, 0], kind="stable") if obj.shape[0] else np.zeros(0, dtype=int)
+    return RunFront(_group_name(study, specs[0]), key, study, specs, names,
+                    [ids[i] for i in order], obj[order], x[order] if x.size else x,
+                    evals_hist, hv_hist, study.reference_point)
+
+
+def _common(fronts: list[RunFront], reference) -> tuple[list[str], np.ndarray]:
+    names = fronts[0].objective_names
+    for f in fronts[1:]:
+        if f.objective_names != names:
+            raise InputError(f"fronts have different objectives: {fronts[0].run} has "
+                             f"{', '.join(names)}, {f.run} has {', '.join(f.objective_names)}; "
+                             "compare runs of the same objectives")
+    if reference is None:
+        refs = {f.reference_point for f in fronts}
+        if None in refs:
+            missing = next(f for f in fronts if f.reference_point is None)
+            raise InputError(f"run {missing.run} has no fronts.reference_point in its study; "
+                             "give one with --reference")
+        if len(refs) > 1:
+            raise InputError("runs use different reference points ("
+                             + "; ".join(str(list(r)) for r in sorted(refs))
+                             + "); give one common point with --reference")
+        reference = refs.pop()
+    ref = np.asarray(reference, dtype=float)
+    if ref.size != len(names):
+        raise InputError(f"reference point {ref.tolist()} has {ref.size} values; the fronts have "
+                         f"{len(names)} objectives ({', '.join(names)})")
+    return names, ref
+
+
+def compare_fronts(fronts: list[RunFront], reference=None) -> dict:
+    """Hypervolumes, group statistics and pairwise comparisons, as a JSON-ready dict."""
+    from scipy.stats import mannwhitneyu
+
+    names, ref = _common(fronts, reference)
+    runs = []
+    groups: dict[str, list[RunFront]] = {}
+    for f in fronts:
+        try:
+            hv = hypervolume(f.objectives, ref)
+        except FrontError as exc:
+            allp = np.concatenate([g.objectives for g in fronts if g.objectives.size])
+            hi = allp.max(axis=0)
+            suggest = ",".join(f"{v:.3g}" for v in np.where(hi > 0, 1.1 * hi, 0.9 * hi + 0.1))
+            raise InputError(f"run {f.run}: {exc} (for example --reference {suggest})") from None
+        runs.append({
+            "run": f.run, "group": f.group, "reference_point": ref.tolist(), "hypervolume": hv,
+            "front": f.objectives.tolist(),
+            "designs": [{"id": i, "objectives": o.tolist()} for i, o in zip(f.ids, f.objectives)],
+        })
+        groups.setdefault(f.group, []).append(f)
+    hv_of = {r["run"]: r["hypervolume"] for r in runs}
+    out_groups = []
+    merged = {}
+    for g, fs in groups.items():
+        hvs = np.array([hv_of[f.run] for f in fs])
+        allp = np.concatenate([f.objectives for f in fs]) if fs else np.zeros((0, len(names)))
+        ids = sum((f.ids for f in fs), [])
+        keep, pts = merge_archive(np.zeros(0, dtype=np.int64), np.zeros((0, len(names))),
+                                  np.arange(allp.shape[0]), allp)
+        merged[g] = pts
+        entry = {
+            "group": g, "runs": [f.run for f in fs], "count": len(fs),
+            "hypervolume": {"mean": float(hvs.mean()), "median": float(np.median(hvs)),
+                            "std": float(hvs.std(ddof=1)) if len(hvs) > 1 else 0.0,
+                            "min": float(hvs.min()), "max": float(hvs.max())},
+            "merged_front": [{"id": ids[i], "objectives": allp[i].tolist()} for i in keep],
+        }
+        nonempty = [f.objectives for f in fs if f.objectives.shape[0]]
+        if len(names) == 2 and nonempty:
+            entry["median_attainment"] = median_attainment(nonempty).tolist()
+        out_groups.append(entry)
+    comps = []
+    gl = list(groups)
+    for i in range(len(gl)):
+        for j in range(i + 1, len(gl)):
+            a, b = gl[i], gl[j]
+            ha = [hv_of[f.run] for f in groups[a]]
+            hb = [hv_of[f.run] for f in groups[b]]
+            test = mannwhitneyu(ha, hb, alternative="two-sided")
+            comp = {"a": a, "b": b, "test": "Mann-Whitney U (two-sided) on hypervolumes",
+                    "u": float(test.statistic), "p_value": float(test.pvalue)}
+            if merged[a].shape[0] and merged[b].shape[0]:
+                comp["epsilon_additive_a_to_b"] = epsilon_additive(merged[a], merged[b])
+                comp["epsilon_additive_b_to_a"] = epsilon_additive(merged[b], merged[a])
+            comps.append(comp)
+    return {"objectives": names, "reference_point": ref.tolist(), "runs": runs,
+            "groups": out_groups, "comparisons": comps}
+
+
+def format_fronts(res: dict) -> str:
+    names = res["objectives"]
+    lines = [f"fronts of {len(res['runs'])} runs in {len(res['groups'])} groups; objectives "
+             f"{', '.join(names)} (minimised); reference point {res['reference_point']}", ""]
+    head = f"{'group':<36} {'runs':>4} {'HV mean':>10} {'median':>10} {'std':>9} {'min':>10} {'max':>10}"
+    lines += [head, "-" * len(head)]
+    for g in res["groups"]:
+        h = g["hypervolume"]
+        lines.append(f"{g['group']:<36} {g['count']:>4} {h['mean']:>10.5g} {h['median']:>10.5g} "
+                     f"{h['std']:>9.3g} {h['min']:>10.5g} {h['max']:>10.5g}")
+    if res["comparisons"]:
+        lines.append("")
+        for c in res["comparisons"]:
+            eps = ""
+            if "epsilon_additive_a_to_b" in c:
+                eps = (f"; additive epsilon {c['epsilon_additive_a_to_b']:.4g} (a to b), "
+                       f"{c['epsilon_additive_b_to_a']:.4g} (b to a)")
+            lines.append(f"{c['a']}  vs  {c['b']}: Mann-Whitney U = {c['u']:g}, "
+                         f"p = {c['p_value']:.3g}{eps}")
+    for g in res["groups"]:
+        lines.append("")
+        lines.append(f"merged front of {g['group']} ({len(g['merged_front'])} designs; pick by id):")
+        for d in g["merged_front"]:
+            vals = "  ".join(f"{n} {v:.6g}" for n, v in zip(names, d["objectives"]))
+            lines.append(f"  {d['id']:<28} {vals}")
+    return "\n".join(lines)
+
+
+def fronts_csv(fronts: list[RunFront], res: dict) -> str:
+    names = res["objectives"]
+    width = max((f.variables.shape[1] for f in fronts if f.variables.size), default=0)
+    head = ["group", "run", "design"] + names + [f"x{i}" for i in range(width)]
+    rows = [",".join(head)]
+    for f in fronts:
+        for i, o, x in zip(f.ids, f.objectives, f.variables):
+            xs = [repr(float(v)) for v in x] + [""] * (width - len(x))
+            rows.append(",".join([f.group, f.run, i] + [repr(float(v)) for v in o] + xs))
+    return "\n".join(rows) + "\n"
+
+
+def plot_fronts(fronts: list[RunFront], res: dict, path) -> None:
+    """Fronts overlaid by group, median attainment surfaces, hypervolume against evaluations."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from .report import CAUTION
+
+    names = res["objectives"]
+    groups = [g["group"] for g in res["groups"]]
+    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    col = {g: colours[i % len(colours)] for i, g in enumerate(groups)}
+    fig, axes = plt.subplots(1, 3, figsize=(15, 4.8))
+    a0, a1, a2 = axes
+    for f in fronts:
+        if f.objectives.shape[0]:
+            o = f.objectives
+            a0.plot(o[:, 0], o[:, 1], "o", ms=3, alpha=0.7, color=col[f.group])
+    for g in groups:
+        a0.plot([], [], "o", color=col[g], label=g)
+    a0.set_xlabel(names[0])
+    a0.set_ylabel(names[1])
+    a0.set_title("fronts of every run, by group" + (" (first two objectives)"
+                                                     if len(names) > 2 else ""), fontsize=10)
+    a0.legend(fontsize=7, frameon=False)
+    for g in res["groups"]:
+        med = g.get("median_attainment")
+        if med:
+            m = np.array(sorted(med))
+            a1.step(m[:, 0], m[:, 1], where="post", color=col[g["group"]], label=g["group"])
+    a1.set_xlabel(names[0])
+    a1.set_ylabel(names[1])
+    a1.set_title("median attainment surface of each group", fontsize=10)
+    if len(names) == 2:
+        a1.legend(fontsize=7, frameon=False)
+    for f in fronts:
+        if f.evaluations.size and np.isfinite(f.hv_history).any():
+            a2.plot(f.evaluations, f.hv_history, lw=1.0, color=col[f.group])
+    a2.set_xlabel("evaluations")
+    a2.set_ylabel("hypervolume (run's own reference point)")
+    a2.set_title("hypervolume history", fontsize=10)
+    for ax in axes:
+        ax.grid(True, color="0.9")
+    fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
+    fig.tight_layout(rect=(0, 0.04, 1, 1))
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
+
+
+def pick_design(folder: Path, *, nearest: dict | None = None, knee: bool = False,
+                index: str | None = None, run: str | None = None):
+    """Choose one design from a study folder's merged front.
+
+    Returns ``(section_set, info)`` where info holds the run, evaluation, objectives and the
+    design id.
+    """
+    fronts = collect_fronts([str(folder)])
+    if run is not None:
+        fronts = [f for f in fronts if f.run == run or run in [s.run_id for s in f.specs]]
+        if not fronts:
+            raise InputError(f"no run {run!r} in {str(folder)!r}")
+    names = fronts[0].objective_names
+    allp = np.concatenate([f.objectives for f in fronts])
+    ids = sum((f.ids for f in fronts), [])
+    if allp.shape[0] == 0:
+        raise InputError(f"{str(folder)!r} has no feasible design on any front yet")
+    keep, pts = merge_archive(np.zeros(0, dtype=np.int64), np.zeros((0, len(names))),
+                              np.arange(allp.shape[0]), allp)
+    order = np.argsort(pts[:, 0], kind="stable")
+    keep, pts = keep[order], pts[order]
+    if index is not None:
+        if "#" in index:
+            if index not in ids:
+                raise InputError(f"no design {index!r} on the fronts of {str(folder)!r}")
+            j = ids.index(index)
+        else:
+            try:
+                k = int(index)
+            except ValueError:
+                raise InputError(f"--index {index!r} is neither a position nor an id RUN#EVAL")
+            if not 0 <= k < len(keep):
+                raise InputError(f"--index {k} is out of range (the merged front has "
+                                 f"{len(keep)} designs, 0 to {len(keep) - 1})")
+            j = int(keep[k])
+    elif knee:
+        j = int(keep[knee_index(pts)])
+    else:
+        missing = [n for n in names if n not in nearest]
+        extra = [n for n in nearest if n not in names]
+        if missing or extra:
+            raise InputError(f"--nearest needs a value for each objective ({', '.join(names)}); "
+                             + (f"missing {', '.join(missing)}" if missing else
+                                f"unknown {', '.join(extra)}"))
+        target = np.array([nearest[n] for n in names])
+        span = np.where(np.ptp(pts, axis=0) > 0, np.ptp(pts, axis=0), 1.0)
+        j = int(keep[np.argmin(np.hypot.reduce((pts - target) / span, axis=1))])
+    design = ids[j]
+    run_id, ev = design.split("#")
+    spec = next(s for f in fronts for s in f.specs if s.run_id == run_id)
+    log = read_run(run_paths(Path(folder), run_id)[0])
+    x = log.evals["x"][int(ev)]
+    sec = Parametrisation.from_shape(spec.shape).sections(x[None, :])
+    info = {"id": design, "run": run_id, "evaluation": int(ev),
+            "objectives": dict(zip(names, map(float, allp[j]))), "spec": spec,
+            "te_angle_deg": math.degrees(sec.te_angle[0])}
+    return sec, info
