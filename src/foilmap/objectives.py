@@ -58,42 +58,57 @@ class Problem:
     def objective_names(self) -> list[str]:
         return [n for n, _ in self.objectives]
 
-    @property
-    def constraint_scales(self) -> np.ndarray:
-        """Typical size of each constraint, by which the search sees it divided (so that every
-        g is of order one for the augmented Lagrangian); the logs keep physical values."""
-        scale = {"min_thickness": 0.01, "max_thickness": 0.01, "thickness_x_low": 0.05,
-                 "thickness_x_high": 0.05, "min_le_radius": 0.002,
-                 "min_te_angle": math.radians(1.0), "cm_low": 0.01, "cm_high": 0.01,
-                 "max_peak_suction": 0.1}
-        out = [scale.get(n, 0.005) for n in self.constraint_names]
-        if self.epsilon is not None:
-            out[-1] = max(0.05 * abs(self.epsilon), 1e-3)
-        return np.array(out)
+    def _specs(self) -> list[tuple[str, float, object]]:
+        """The study's constraints as (name, typical size, g(ev, an, peak) ≤ 0), in log order
+        (every bound is bound into its function as a default argument).
+
+        The search sees each g divided by its typical size (every g of order one for the
+        augmented Lagrangian); the logs keep physical values.
+        """
+        c = self.constraints
+        specs = []
+        if "min_thickness" in c:
+            specs.append(("min_thickness", 0.01, lambda ev, an, pk: c["min_thickness"] - ev.thickness))
+        if "max_thickness" in c:
+            specs.append(("max_thickness", 0.01, lambda ev, an, pk: ev.thickness - c["max_thickness"]))
+        if "thickness_x" in c:
+            lo, hi = c["thickness_x"]
+            specs.append(("thickness_x_low", 0.05, lambda ev, an, pk, lo=lo: lo - ev.thickness_x))
+            specs.append(("thickness_x_high", 0.05,
+                          lambda ev, an, pk, hi=hi: ev.thickness_x - hi))
+        if "min_le_radius" in c:
+            specs.append(("min_le_radius", 0.002,
+                          lambda ev, an, pk: c["min_le_radius"] - ev.le_radius))
+        if "min_te_angle_deg" in c:
+            tau = math.radians(c["min_te_angle_deg"])
+            specs.append(("min_te_angle", math.radians(1.0), lambda ev, an, pk: tau - ev.te_angle))
+        if "cm" in c:
+            lo, hi = c["cm"]
+            specs.append(("cm_low", 0.01, lambda ev, an, pk, lo=lo: lo - ev.cm_quarter_chord))
+            specs.append(("cm_high", 0.01, lambda ev, an, pk, hi=hi: ev.cm_quarter_chord - hi))
+        for x, t in c.get("min_thickness_at", []):
+            def station(ev, an, pk, x=x, t=t):
+                yu, yl = thickness_at(an.split, np.array([x]))
+                return t - (yu - yl)[:, 0]
+            specs.append((f"thickness_at_{x:g}", 0.005, station))
+        if "max_peak_suction" in c:
+            specs.append(("max_peak_suction", 0.1, lambda ev, an, pk: pk - c["max_peak_suction"]))
+        return specs
 
     @property
     def constraint_names(self) -> list[str]:
-        c = self.constraints
-        names = []
-        if "min_thickness" in c:
-            names.append("min_thickness")
-        if "max_thickness" in c:
-            names.append("max_thickness")
-        if "thickness_x" in c:
-            names += ["thickness_x_low", "thickness_x_high"]
-        if "min_le_radius" in c:
-            names.append("min_le_radius")
-        if "min_te_angle_deg" in c:
-            names.append("min_te_angle")
-        if "cm" in c:
-            names += ["cm_low", "cm_high"]
-        for x, _ in c.get("min_thickness_at", []):
-            names.append(f"thickness_at_{x:g}")
-        if "max_peak_suction" in c:
-            names.append("max_peak_suction")
+        names = [n for n, _, _ in self._specs()]
         if self.epsilon is not None:
             names.append(f"epsilon_{self.objective_names[1]}")
         return names
+
+    @property
+    def constraint_scales(self) -> np.ndarray:
+        """Typical size of each constraint (see :meth:`_specs`), in log order."""
+        out = [sc for _, sc, _ in self._specs()]
+        if self.epsilon is not None:
+            out.append(max(0.05 * abs(self.epsilon), 1e-3))
+        return np.array(out)
 
     def _proxies(self) -> tuple[str, ...]:
         names = self.objective_names
@@ -146,30 +161,7 @@ class Problem:
         return Outcome(f, obj, g, status, feasible)
 
     def _constraints(self, ev, an, peak) -> np.ndarray:
-        c = self.constraints
-        cols = []
-        if "min_thickness" in c:
-            cols.append(c["min_thickness"] - ev.thickness)
-        if "max_thickness" in c:
-            cols.append(ev.thickness - c["max_thickness"])
-        if "thickness_x" in c:
-            lo, hi = c["thickness_x"]
-            cols += [lo - ev.thickness_x, ev.thickness_x - hi]
-        if "min_le_radius" in c:
-            cols.append(c["min_le_radius"] - ev.le_radius)
-        if "min_te_angle_deg" in c:
-            cols.append(math.radians(c["min_te_angle_deg"]) - ev.te_angle)
-        if "cm" in c:
-            lo, hi = c["cm"]
-            cols += [lo - ev.cm_quarter_chord, ev.cm_quarter_chord - hi]
-        stations = c.get("min_thickness_at", [])
-        if stations:
-            xs = np.array([x for x, _ in stations])
-            need = np.array([t for _, t in stations])
-            yu, yl = thickness_at(an.split, xs)
-            cols += list((need[None, :] - (yu - yl)).T)
-        if "max_peak_suction" in c:
-            cols.append(peak - c["max_peak_suction"])
+        cols = [fn(ev, an, peak) for _, _, fn in self._specs()]
         nb = ev.status.shape[0]
         return np.stack(cols, axis=1) if cols else np.zeros((nb, 0))
 
