@@ -392,6 +392,142 @@ def cmd_pick(args) -> int:
     return EXIT_OK
 
 
+SCREEN_NOTE = ("First screening by integral boundary-layer methods (Thwaites, Michel, Head, "
+               "Squire-Young) on the ideal-flow speed: not a replacement for a viscous solver.")
+
+
+def cmd_screen(args) -> int:
+    from .report import CAUTION
+    from .viscous import DRAG_STATION, screen_analysis
+
+    rec, an = _analyse(args, ())
+    _check_ok(rec, an)
+    res = screen_analysis(an, args.re)
+    out = {"name": rec.name, "cl": float(an.evaluation.cl[0]),
+           "alpha_deg": math.degrees(an.evaluation.alpha[0]), **res.record(0),
+           "drag_station_x": DRAG_STATION, "note": SCREEN_NOTE, "caution": CAUTION}
+    if args.json:
+        print(json.dumps(out, indent=2))
+        return EXIT_OK
+    def fx(v):
+        return "-" if v is None else f"{v:.4f}"
+    print(f"foilmap screen | {rec.name} | Cl {out['cl']:.4f} at {out['alpha_deg']:.3f} deg | "
+          f"Re {args.re:.3g}")
+    print(f"  profile drag Cd (Squire-Young at x/c = {DRAG_STATION})   {fx(out['cd'])}")
+    for side in ("upper", "lower"):
+        r = out[side]
+        how = " (at laminar separation)" if r["transition_by_laminar_separation"] else ""
+        print(f"  {side:<6} transition x/c {fx(r['x_transition'])}{how}; laminar separation "
+              f"{fx(r['x_laminar_separation'])}; turbulent separation "
+              f"{fx(r['x_turbulent_separation'])}")
+    print(SCREEN_NOTE)
+    print(CAUTION)
+    return EXIT_OK
+
+
+def _constraints_record(names, values) -> dict:
+    return {n: {"value_g": float(v), "margin": float(-v), "met": bool(v <= 0)}
+            for n, v in zip(names, values)}
+
+
+def _designs_from_folder(args, folder: Path):
+    from .engine import run_paths
+    from .export import Design
+    from .frontreport import collect_fronts
+    from .runlog import read_run
+    from .study import Parametrisation
+    from .studyreport import best_design
+
+    picks = []  # (run spec, study, evaluation index)
+    if args.best:
+        b, run, study = best_design(folder, args.run)
+        picks.append((run, study, b["index"]))
+    else:
+        fronts = collect_fronts([str(folder)])
+        ids = [i for f in fronts for i in f.ids]
+        wanted = ids if args.all else [i.strip() for i in args.ids.split(",") if i.strip()]
+        for i in wanted:
+            if i not in ids:
+                raise InputError(f"no design {i!r} on the fronts of {str(folder)!r} "
+                                 f"(see foilmap fronts {folder})")
+        for i in wanted:
+            rid, ev = i.split("#")
+            spec, study = next((s, f.study) for f in fronts for s in f.specs if s.run_id == rid)
+            picks.append((spec, study, int(ev)))
+    designs = []
+    for spec, study, ev in picks:
+        log = read_run(run_paths(folder, spec.run_id)[0])
+        x = log.evals["x"][ev]
+        sec = Parametrisation.from_shape(spec.shape).sections(x[None, :])
+        cl = args.cl if args.cl is not None else (None if args.alpha is not None
+                                                  else spec.point.cl)
+        designs.append(Design(
+            name=f"{spec.run_id}-{ev}", section=sec, cl=cl,
+            alpha=None if args.alpha is None else math.radians(args.alpha),
+            cl_range=spec.point.cl_range if cl == spec.point.cl else None,
+            reynolds=args.re if args.re is not None else spec.point.reynolds,
+            objectives=dict(zip(log.objective_names, map(float, log.evals["objectives"][ev]))),
+            constraints=_constraints_record(log.constraint_names, log.evals["constraints"][ev]),
+            provenance={"study": study.name, "run": spec.run_id, "log": str(log.path),
+                        "evaluation": ev, "generation": int(log.evals["generation"][ev]),
+                        "seed": spec.seed}))
+    return designs
+
+
+def cmd_export(args) -> int:
+    import os
+    import shutil
+    import tempfile
+
+    from .export import Design, export_designs
+    from .report import CAUTION
+    from .sectionfile import load_section
+
+    out = Path(args.output)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())):
+        raise InputError(f"export: output {str(out)!r} exists and is not an empty folder")
+    if not out.parent.exists():
+        raise InputError(f"export: folder {str(out.parent)!r} does not exist")
+    if args.mesh:
+        from .meshing import check_gmsh
+
+        check_gmsh()
+    sel = Path(args.selection)
+    if sel.is_dir():
+        if not (args.best or args.ids or args.all):
+            raise InputError("export: a study folder needs --best, --ids ID,... or --all")
+        designs = _designs_from_folder(args, sel)
+    elif sel.is_file():
+        if args.best or args.ids or args.all:
+            raise InputError("export: --best, --ids and --all select from a study folder, "
+                             f"not from the section file {str(sel)!r}")
+        if args.cl is None and args.alpha is None:
+            raise InputError("export: a section file needs the operating point: --cl or --alpha")
+        rec = load_section(sel)
+        designs = [Design(rec.name, rec.to_set(), cl=args.cl,
+                          alpha=None if args.alpha is None else math.radians(args.alpha),
+                          reynolds=args.re, provenance={"file": str(sel), **rec.provenance})]
+    else:
+        raise InputError(f"export: {str(sel)!r} is neither a section file nor a study folder")
+    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
+    try:
+        rows = export_designs(designs, tmp, points=args.points, spacing=args.spacing,
+                              te_thickness=args.te_thickness, mesh=args.mesh,
+                              farfield=args.farfield, first_cell=args.first_cell)
+        if out.exists():
+            out.rmdir()
+        os.replace(tmp, out)
+    finally:
+        if tmp.exists():
+            shutil.rmtree(tmp)
+    print(f"{len(rows)} design(s) exported to {out} (summary.csv, one folder per design)")
+    if args.te_thickness > 0:
+        print(f"trailing edge opened to {args.te_thickness:g} chords by a linear thickness blend "
+              f"(points move by up to {args.te_thickness / 2:g} chords; the LE does not move)")
+    print(CAUTION)
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="foilmap", description=(
         "Search and evaluate aerofoil and hydrofoil sections by generalised conformal maps. "
@@ -499,6 +635,40 @@ def build_parser() -> argparse.ArgumentParser:
     pk.add_argument("--run", metavar="ID", help="only this run's front")
     pk.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
     pk.set_defaults(func=cmd_pick)
+
+    sc = sub.add_parser("screen", help="integral boundary-layer screening: transition, "
+                        "separation and profile drag")
+    sc.add_argument("section", help="section file (TOML)")
+    _add_operating_point(sc)
+    sc.add_argument("--re", required=True, type=_finite("Reynolds number", 1e4, 1e9),
+                    metavar="RE", help="chord Reynolds number")
+    sc.add_argument("--json", action="store_true", help="print one JSON object")
+    sc.set_defaults(func=cmd_screen)
+
+    ex = sub.add_parser("export", help="hand-off bundles for viscous analysis")
+    ex.add_argument("selection", help="a section file, or a study folder with --best, --ids, --all")
+    g = ex.add_mutually_exclusive_group()
+    g.add_argument("--cl", type=_finite("lift coefficient", -20.0, 20.0), metavar="CL",
+                   help="operating point (default: the design Cl of the run)")
+    g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG")
+    w = ex.add_mutually_exclusive_group()
+    w.add_argument("--best", action="store_true", help="the best feasible design of the folder")
+    w.add_argument("--ids", metavar="ID,...", help="front designs by id (RUN#EVAL, see fronts)")
+    w.add_argument("--all", action="store_true", help="every design of the folder's fronts")
+    ex.add_argument("--run", metavar="ID", help="with --best: one run's best")
+    ex.add_argument("--re", type=_finite("Reynolds number", 1e4, 1e9), metavar="RE",
+                    help="Reynolds number for the boundary-layer screening in design.json")
+    ex.add_argument("--points", type=_int_range("points", 11, 100001), default=201)
+    ex.add_argument("--spacing", choices=("cosine", "map", "curvature"), default="cosine")
+    ex.add_argument("--te-thickness", type=_finite("trailing-edge thickness", 0.0, 0.05),
+                    default=0.0, metavar="T", help="open the trailing edge to T chords")
+    ex.add_argument("--mesh", action="store_true", help="also a 2-D gmsh mesh (mesh extra)")
+    ex.add_argument("--farfield", type=_finite("far field", 2.0, 1000.0), default=20.0,
+                    metavar="CHORDS", help="far-field radius of the mesh")
+    ex.add_argument("--first-cell", type=_finite("first cell height", 1e-8, 1e-2),
+                    default=1e-5, metavar="H", help="first cell height at the wall, chords")
+    ex.add_argument("-o", "--output", required=True, metavar="DIR")
+    ex.set_defaults(func=cmd_export)
     return p
 
 
