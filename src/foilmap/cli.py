@@ -180,11 +180,17 @@ def _progress(study, budget):
     return Progress(total_runs=len(runs), total_evals=total)
 
 
-def _run_folder(study, out: Path, workers, budget) -> int:
+def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) -> int:
     from .engine import run_study
 
+    eng = engine or study.engine["kind"]
+    sched = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
+    workers = workers or study.engine["workers"] or None
+    if sched and eng != "dask":
+        raise InputError("--scheduler needs --engine dask (or kind = \"dask\" in [engine])")
     prog = _progress(study, budget)
-    summaries = run_study(study, out, workers=workers, budget=budget, progress=prog)
+    summaries = run_study(study, out, workers=workers, budget=budget, progress=prog, engine=eng,
+                          scheduler=sched)
     failed = [s for s in summaries if s.get("state") != "complete"]
     print(f"study {study.name}: {len(summaries) - len(failed)} runs finished now, "
           f"{len(failed)} failed; logs in {out / 'runs'}")
@@ -198,7 +204,7 @@ def cmd_run(args) -> int:
 
     study = load_study(args.study)
     out = Path(args.out) if args.out else Path("results") / study.name
-    return _run_folder(study, out, args.workers, args.budget)
+    return _run_folder(study, out, args.workers, args.budget, args.engine, args.scheduler)
 
 
 def cmd_resume(args) -> int:
@@ -206,7 +212,7 @@ def cmd_resume(args) -> int:
 
     out = Path(args.folder)
     study = load_folder(out)
-    return _run_folder(study, out, args.workers, None)
+    return _run_folder(study, out, args.workers, None, args.engine, args.scheduler)
 
 
 def cmd_status(args) -> int:
@@ -528,6 +534,13 @@ def cmd_export(args) -> int:
     return EXIT_OK
 
 
+def _add_engine(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--engine", choices=("local", "dask"),
+                   help="local process pool (default) or a Dask cluster (cluster extra)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="Dask scheduler address, e.g. tcp://head:8786 (default: a LocalCluster)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="foilmap", description=(
         "Search and evaluate aerofoil and hydrofoil sections by generalised conformal maps. "
@@ -570,11 +583,13 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
     r.add_argument("--budget", type=_int_range("budget", 10, 10**9), metavar="EVALS",
                    help="evaluation budget of each run, replacing the study's")
+    _add_engine(r)
     r.set_defaults(func=cmd_run)
 
     rs = sub.add_parser("resume", help="finish the unfinished runs of a study folder")
     rs.add_argument("folder", help="study folder")
     rs.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
+    _add_engine(rs)
     rs.set_defaults(func=cmd_resume)
 
     s_ = sub.add_parser("status", help="progress of every run of a study folder (also live)")

@@ -57,7 +57,10 @@ def _summary(run: RunSpec, log_path: Path) -> dict:
     best = log.best()
     return {"run": run.run_id, "state": log.state_name, "generations": log.generations,
             "evaluations": log.evaluations, "best": None if best is None else best["f"],
-            "resumes": log.resumes}
+            "best_objectives": None if best is None else dict(
+                zip(log.objective_names, map(float, best["objectives"]))),
+            "resumes": log.resumes,
+            "elapsed_s": float(log.gen["time"][-1]) if log.generations else None}
 
 
 def execute_run(study: Study, run: RunSpec, out: Path, report=None) -> dict:
@@ -204,101 +207,169 @@ def _init_worker(queue) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
 
 
+#: what the index keeps of a finished run (so that status need not open complete logs)
+_INDEXED = ("state", "generations", "evaluations", "best", "best_objectives", "resumes",
+            "elapsed_s")
+#: attempts of a run inside one task before it is recorded as failed (each resumes from the
+#: run's own checkpoint)
+RUN_ATTEMPTS = 3
+
+
 def _worker(text: str, source: str, base_dir: str, budget, run_id: str, out: str) -> dict:
+    """Run one run where the task lands (a pool process or a Dask worker); returns a summary.
+
+    A run that raises is retried (from its checkpoint) up to :data:`RUN_ATTEMPTS` times, then
+    recorded as failed with its error; the study goes on with the rest.
+    """
     study = parse_study(text, source, base_dir)
     if budget is not None:
         study = study.with_budget(budget)
     run = next(r for r in study.runs() if r.run_id == run_id)
     q = _QUEUE
     report = (lambda m: q.put(m)) if q is not None else None
-    try:
-        return execute_run(study, run, Path(out), report)
-    except Exception as exc:  # a failing run is recorded, the study goes on
-        return {"run": run_id, "state": "failed", "error": f"{type(exc).__name__}: {exc}",
-                "trace": traceback.format_exc(limit=5)}
+    error = None
+    for _ in range(RUN_ATTEMPTS):
+        try:
+            return execute_run(study, run, Path(out), report)
+        except Exception as exc:  # a failing run is recorded, the study goes on
+            error = f"{type(exc).__name__}: {exc}"
+    return {"run": run_id, "state": "failed", "error": error, "attempts": RUN_ATTEMPTS}
+
+
+def _todo(study: Study, out: Path, states: dict) -> list[RunSpec]:
+    todo = []
+    for r in study.runs():
+        log_path, _ = run_paths(out, r.run_id)
+        try:
+            if log_path.exists() and read_run(log_path).state == STATE_COMPLETE:
+                s = _summary(r, log_path)
+                states[r.run_id] = {k: s[k] for k in _INDEXED if s.get(k) is not None}
+                continue
+        except (OSError, KeyError, ValueError):
+            pass
+        todo.append(r)
+    return todo
+
+
+def _single_threaded_kernels() -> None:
+    """Kernels single-threaded in workers: parallelism is across runs, and the bits do not
+    depend on how many BLAS threads a machine offers (inherited by spawned workers)."""
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ[var] = "1"
 
 
 def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
-              progress=None) -> list[dict]:
-    """Run every unfinished run of a study in ``workers`` processes; returns the summaries."""
+              progress=None, engine: str = "local", scheduler: str | None = None) -> list[dict]:
+    """Run every unfinished run of a study; returns the summaries of the runs run now.
+
+    ``engine`` is ``"local"`` (a process pool of ``workers`` on this machine) or ``"dask"`` (a
+    Dask cluster at ``scheduler``, or a LocalCluster of ``workers`` when no address is given).
+    The same study and seeds give the same logs on every engine.
+    """
     out = Path(out)
     study = prepare_folder(study, out, budget)
     budget = _read_options(out).get("budget")
     runs = study.runs()
     workers = max(1, min(workers or os.cpu_count() or 1, len(runs)))
     states: dict[str, dict] = {}
-    todo = []
-    for r in runs:
-        log_path, _ = run_paths(out, r.run_id)
-        try:
-            if log_path.exists() and read_run(log_path).state == STATE_COMPLETE:
-                s = _summary(r, log_path)
-                states[r.run_id] = {k: s[k] for k in ("state", "evaluations", "best")}
-                continue
-        except (OSError, KeyError, ValueError):
-            pass
-        todo.append(r)
+    todo = _todo(study, out, states)
     write_index(study, out, states)
     if progress is not None:
         progress.total_runs = len(runs)
         progress.done = len(runs) - len(todo)
-    summaries = []
     if not todo:
-        return summaries
-    # kernels single-threaded in workers: parallelism is across runs, and bits do not depend on
-    # how many BLAS threads a machine offers
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ[var] = "1"
-    ctx = mp.get_context("spawn")
-    queue = ctx.Queue()
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_init_worker,
-                               initargs=(queue,))
+        return []
+    _single_threaded_kernels()
+    args = (study.text, study.source, study.base_dir, budget)
+    if engine == "dask":
+        from .dask_engine import DaskBackend
+
+        backend = DaskBackend(workers, scheduler, out)
+    elif engine == "local":
+        backend = _LocalBackend(workers)
+    else:
+        raise InputError(f"engine {engine!r} is not one of: local, dask")
+    return _drive(backend, study, out, todo, args, states, progress)
+
+
+class _LocalBackend:
+    """The default engine: spawned worker processes on this machine."""
+
+    def __init__(self, workers: int):
+        ctx = mp.get_context("spawn")
+        self.queue = ctx.Queue()
+        self.pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx,
+                                        initializer=_init_worker, initargs=(self.queue,))
+
+    def submit(self, args, run_id: str, out: Path):
+        return self.pool.submit(_worker, *args, run_id, str(out))
+
+    def wait(self, pending, timeout: float):
+        return wait(pending, timeout=timeout, return_when=FIRST_COMPLETED)
+
+    def result(self, fut):
+        return fut.result()
+
+    def messages(self):
+        while True:
+            try:
+                yield self.queue.get_nowait()
+            except Exception:
+                return
+
+    def abort(self) -> None:
+        self.pool.shutdown(wait=False, cancel_futures=True)
+        for p in list(getattr(self.pool, "_processes", {}).values()):
+            p.terminate()  # SIGTERM: workers close their logs through SystemExit
+
+    def close(self) -> None:
+        self.pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _drive(backend, study: Study, out: Path, todo, args, states, progress) -> list[dict]:
+    """Submit every run, collect them as they complete, keep the index and the progress."""
+    summaries = []
     try:
-        futures = {pool.submit(_worker, study.text, study.source, study.base_dir, budget,
-                               r.run_id, str(out)): r for r in todo}
+        futures = {backend.submit(args, r.run_id, out): r for r in todo}
         for r in todo:
             states[r.run_id] = {"state": "queued"}
         pending = set(futures)
         while pending:
-            done, pending = wait(pending, timeout=0.5, return_when=FIRST_COMPLETED)
-            _drain(queue, progress, states)
+            done, pending = backend.wait(pending, 0.5)
+            _drain(backend.messages(), progress, states)
             for fut in done:
-                r = futures[fut]
+                r = futures.pop(fut)
                 try:
-                    s = fut.result()
-                except Exception as exc:  # the worker process itself died
-                    s = {"run": r.run_id, "state": "failed", "error": f"{type(exc).__name__}: {exc}"}
+                    s = backend.result(fut)
+                except Exception as exc:  # the worker process itself died, too often
+                    s = {"run": r.run_id, "state": "failed",
+                         "error": f"{type(exc).__name__}: {exc}"}
                 summaries.append(s)
-                states[r.run_id] = {k: s.get(k) for k in ("state", "evaluations", "best", "error")
+                states[r.run_id] = {k: s.get(k) for k in _INDEXED + ("error",)
                                     if s.get(k) is not None}
                 if progress is not None:
-                    progress.run_ended(r.run_id, s["state"], s.get("best"), s.get("error"))
+                    progress.run_ended(r.run_id, s["state"], s.get("best"), s.get("error"), s)
                 write_index(study, out, states)
-        _drain(queue, progress, states)
+        _drain(backend.messages(), progress, states)
     except BaseException:
-        for r_id, st in states.items():
+        for st in states.values():
             if st.get("state") in ("queued", "running"):
                 st["state"] = "interrupted"
-        pool.shutdown(wait=False, cancel_futures=True)
-        for p in list(getattr(pool, "_processes", {}).values()):
-            p.terminate()  # SIGTERM: workers close their logs through SystemExit
+        backend.abort()
         write_index(study, out, states)
         raise
     finally:
-        pool.shutdown(wait=True, cancel_futures=True)
+        backend.close()
         if progress is not None:
             progress.close()
     write_index(study, out, states)
     return summaries
 
 
-def _drain(queue, progress, states) -> None:
-    while True:
-        try:
-            msg = queue.get_nowait()
-        except Exception:
-            return
-        states.setdefault(msg["run"], {})["state"] = "running"
+def _drain(messages, progress, states) -> None:
+    for msg in messages:
+        st = states.setdefault(msg["run"], {})
+        if st.get("state") not in ("complete", "failed"):  # a late message from a run just done
+            st["state"] = "running"
         if progress is not None:
             progress.update(msg)
-

@@ -49,12 +49,19 @@ class Progress:
             self._line(msg, "")
             self._last_line[msg["run"]] = now
 
-    def run_ended(self, run: str, state: str, best=None, error: str | None = None) -> None:
+    def run_ended(self, run: str, state: str, best=None, error: str | None = None,
+                  summary: dict | None = None) -> None:
         if state == "complete":
             self.done += 1
         else:
             self.failed += 1
-        msg = self.runs.get(run, {"run": run})
+        msg = dict(self.runs.get(run, {"run": run}))
+        if summary:
+            msg.update({k: summary[k] for k in ("generations", "evaluations") if k in summary})
+            msg.setdefault("generation", summary.get("generations", 0))
+            if "generations" in summary:
+                msg["generation"] = summary["generations"]
+        self.runs[run] = msg
         tail = f"{state}" + (f": {error}" if error else "")
         if self.tty:
             self.stream.write("\r\033[K")

@@ -115,12 +115,19 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "proxy_end": Key("float", 0.9, "chord station where the recovery proxies stop", 0.5, 1.0),
     },
 }
+SCHEMA["engine"] = {
+    "kind": Key("choice", "local", "where runs go: local (a process pool on this machine) or "
+                "dask (a Dask cluster)", choices=("local", "dask")),
+    "scheduler": Key("str", "", "Dask scheduler address (empty: a LocalCluster on this machine)"),
+    "workers": Key("int", 0, "worker processes (0: the number of cores)", 0, 4096),
+}
 SCHEMA["fronts"] = {
     "reference_point": Key("floats", None, "hypervolume reference point, one value per objective "
                            "in the order of [objectives]", -1e6, 1e6),
 }
 _VARIANT_TABLES = ("shape", "search")
-_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant", "fronts")
+_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant", "fronts",
+        "engine")
 
 
 def _fail(where: str, msg: str):
@@ -270,6 +277,7 @@ class Study:
     source: str = "<text>"
     base_dir: str = "."  # folder that relative paths in the study (shape.start) are read from
     reference_point: tuple[float, ...] | None = None  # [fronts] reference_point
+    engine: dict = field(default_factory=lambda: {"kind": "local", "scheduler": "", "workers": 0})
 
     def runs(self) -> list[RunSpec]:
         """Expand into runs: variants × points × seeds, in that order."""
@@ -297,7 +305,7 @@ class Study:
             for n, o in self.variants)
         return Study(self.name, self.description, self.seeds, self.shape, self.points,
                      self.objectives, self.constraints, search, variants, self.text, self.source,
-                     self.base_dir, self.reference_point)
+                     self.base_dir, self.reference_point, self.engine)
 
 
 def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
@@ -396,9 +404,10 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) 
     for i, (_, over) in enumerate(variants, start=1):
         if "start" in over.get("shape", {}):
             _resolve_start(where, f"variant[{i}].shape.start", over["shape"], base_dir)
+    eng = _table(where, "engine", data.get("engine"), SCHEMA["engine"])
     study = Study(st["name"], st["description"], tuple(st["seeds"]), shape, tuple(points),
                   objectives, cons, search, tuple(variants), text, source, base_dir,
-                  None if ref is None else tuple(ref))
+                  None if ref is None else tuple(ref), eng)
     for run in study.runs():
         _check_shape(where, run)
     return study

@@ -40,7 +40,13 @@ def folder_status(out: Path) -> dict:
                "elapsed_s": None, "resumes": 0, "file": str(log_path.relative_to(out))}
         if "error" in entry:
             row["error"] = entry["error"]
-        if log_path.exists():
+        if entry.get("state") == "complete" and "generations" in entry:
+            # a finished run: its index entry holds what status shows (no log to open)
+            for k in ("generations", "evaluations", "best", "best_objectives", "resumes",
+                      "elapsed_s"):
+                if k in entry:
+                    row[k] = entry[k]
+        elif log_path.exists():
             try:
                 log = read_run(log_path)
             except (OSError, KeyError, ValueError) as exc:

@@ -1,0 +1,150 @@
+"""Studies beyond one machine: the Dask engine gives the local engine's logs, survives a killed
+worker and a killed driver; the local engine carries a thousand tiny runs.  Real processes,
+loopback only (LocalCluster), bounded in time."""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import threading
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from foilmap.engine import run_study
+from foilmap.runlog import read_run
+from foilmap.study import parse_study
+from test_search import logs_equal
+
+pytestmark = pytest.mark.slow
+
+STUDY = """
+# test study (invented data)
+[study]
+name = "cluster"
+seeds = [{seeds}]
+[shape]
+coefficients = 4
+[[point]]
+name = "p"
+cl = 0.5
+[objectives]
+peak_suction = 1.0
+[constraints]
+min_thickness = 0.10
+[search]
+max_evaluations = {evals}
+"""
+
+
+def study(n: int, evals: int):
+    return parse_study(STUDY.format(seeds=", ".join(map(str, range(1, n + 1))), evals=evals))
+
+
+def all_equal(a: Path, b: Path, st) -> None:
+    for r in st.runs():
+        logs_equal(a / "runs" / f"{r.run_id}.h5", b / "runs" / f"{r.run_id}.h5")
+
+
+def test_forty_runs_on_a_local_cluster_match_the_local_engine(tmp_path):
+    st = study(40, 120)
+    run_study(st, tmp_path / "local", workers=2)
+    summ = run_study(st, tmp_path / "dask", workers=2, engine="dask")
+    assert len(summ) == 40 and all(s["state"] == "complete" for s in summ)
+    all_equal(tmp_path / "local", tmp_path / "dask", st)
+    index = json.loads((tmp_path / "dask" / "index.json").read_text())
+    assert [e["state"] for e in index["runs"]] == ["complete"] * 40
+
+
+def test_a_killed_worker_costs_nothing(tmp_path):
+    from foilmap.dask_engine import DaskBackend
+
+    st = study(6, 2500)
+    run_study(st, tmp_path / "ref", workers=2)
+    out = tmp_path / "dask"
+    killed = {}
+    original = DaskBackend.wait
+
+    def wait_and_kill(self, pending, timeout):
+        # once a run has committed a few generations, SIGKILL the worker that runs it
+        if not killed:
+            for key, run_id in list(self.run_of.items()):
+                log = out / "runs" / f"{run_id}.h5"
+                try:
+                    gens = read_run(log).generations if log.exists() else 0
+                except Exception:
+                    gens = 0
+                if gens >= 20:
+                    where = self.client.who_has()
+                    proc = self.client.processing()
+                    addr = next((a for a, keys in proc.items() if key in keys), None)
+                    if addr is not None:
+                        pid = self.worker_pids()[addr]
+                        os.kill(pid, signal.SIGKILL)
+                        killed.update(run=run_id, pid=pid, gens=gens)
+                        del where
+                        break
+        return original(self, pending, timeout)
+
+    DaskBackend.wait = wait_and_kill
+    try:
+        summ = run_study(st, out, workers=2, engine="dask")
+    finally:
+        DaskBackend.wait = original
+    assert killed, "no run was caught in flight"
+    assert all(s["state"] == "complete" for s in summ) and len(summ) == 6
+    all_equal(tmp_path / "ref", out, st)  # nothing duplicated, nothing lost
+    assert read_run(out / "runs" / f"{killed['run']}.h5").resumes >= 1  # resumed, not restarted
+
+
+def test_a_killed_driver_resumes(tmp_path):
+    st = study(4, 3000)
+    run_study(st, tmp_path / "ref", workers=2)
+    sf = tmp_path / "s.toml"
+    sf.write_text(st.text)
+    out = tmp_path / "cut"
+    proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
+                             str(out), "--engine", "dask", "--workers", "2"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+    t0 = time.time()
+    while time.time() - t0 < 120:
+        logs = list((out / "runs").glob("*.h5")) if (out / "runs").exists() else []
+        try:
+            if any(read_run(p).generations >= 20 for p in logs):
+                break
+        except Exception:
+            pass
+        time.sleep(0.1)
+    os.killpg(proc.pid, signal.SIGKILL)  # the driver and its LocalCluster
+    proc.wait(timeout=60)
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out), "--engine",
+                        "dask", "--workers", "2"], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    all_equal(tmp_path / "ref", out, st)
+
+
+def test_a_thousand_tiny_runs_on_the_local_engine(tmp_path):
+    st = study(1000, 10)
+    t0 = time.time()
+    summ = run_study(st, tmp_path / "load", workers=2)
+    took = time.time() - t0
+    assert len(summ) == 1000 and all(s["state"] == "complete" for s in summ)
+    index = json.loads((tmp_path / "load" / "index.json").read_text())
+    assert len(index["runs"]) == 1000
+    assert {e["state"] for e in index["runs"]} == {"complete"}
+    t1 = time.time()
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "status", str(tmp_path / "load"),
+                        "--json"], capture_output=True, text=True, timeout=300)
+    status_s = time.time() - t1
+    assert r.returncode == 0, r.stderr
+    st_json = json.loads(r.stdout)
+    assert st_json["counts"] == {"complete": 1000}
+    # figures for the record (not asserted): printed with -s
+    print(f"\n1000 tiny runs: {took:.1f} s ({1000 / took * 60:.0f} runs/min); "
+          f"status of 1000 runs: {status_s:.2f} s")
