@@ -25,7 +25,6 @@ import time  # noqa: E402
 from importlib.resources import files  # noqa: E402
 from pathlib import Path  # noqa: E402
 
-import numpy as np  # noqa: E402
 
 from foilmap.engine import execute_run, prepare_folder  # noqa: E402
 from foilmap.objectives import Problem  # noqa: E402

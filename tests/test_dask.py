@@ -9,11 +9,9 @@ import os
 import signal
 import subprocess
 import sys
-import threading
 import time
 from pathlib import Path
 
-import numpy as np
 import pytest
 
 from foilmap.engine import run_study

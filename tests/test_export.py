@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from panel import panel_solve
 
-from foilmap import SectionSet, analyse, evaluate
+from foilmap import SectionSet, evaluate
 from foilmap.coordfile import load_coordinates
 from foilmap.fitting import fit_section
 

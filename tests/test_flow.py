@@ -13,7 +13,7 @@ from hypothesis import strategies as st
 
 from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients
 from foilmap.conformal import CircleGrid, map_at, map_on_grid
-from foilmap.flow import flow_at_alpha, flow_at_cl, surface_speed
+from foilmap.flow import surface_speed
 from foilmap.status import Status
 
 

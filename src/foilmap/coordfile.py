@@ -114,7 +114,7 @@ def parse_coordinates(text: str, source: str = "<text>") -> Coordinates:
     counts = (first[1], first[2])
     if all(c >= 2 and float(c).is_integer() for c in counts) and len(rows) - 1 == sum(counts):
         layout = "surfaces"
-        nu, nl = int(counts[0]), int(counts[1])
+        nu = int(counts[0])
         body = rows[1:]
         up = np.array([[r[1], r[2]] for r in body[:nu]])
         lo = np.array([[r[1], r[2]] for r in body[nu:]])

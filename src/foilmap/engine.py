@@ -18,7 +18,6 @@ import multiprocessing as mp
 import os
 import signal
 import time
-import traceback
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from pathlib import Path
 
