@@ -146,3 +146,17 @@ def test_a_thousand_tiny_runs_on_the_local_engine(tmp_path):
     # figures for the record (not asserted): printed with -s
     print(f"\n1000 tiny runs: {took:.1f} s ({1000 / took * 60:.0f} runs/min); "
           f"status of 1000 runs: {status_s:.2f} s")
+
+
+def test_a_run_that_keeps_failing_is_recorded_and_the_rest_finish(tmp_path):
+    st = study(4, 60)
+    out = tmp_path / "f"
+    (out / "runs" / "p.s2.h5").mkdir(parents=True)  # its log cannot be written: every attempt fails
+    for engine in ("local", "dask"):
+        summ = run_study(st, out, workers=2, engine=engine)
+        failed = [s for s in summ if s["state"] == "failed"]
+        assert [s["run"] for s in failed] == ["p.s2"]
+        assert failed[0]["attempts"] == 3 and "Error" in failed[0]["error"]
+        index = {e["run"]: e for e in json.loads((out / "index.json").read_text())["runs"]}
+        assert index["p.s2"]["state"] == "failed" and "error" in index["p.s2"]
+        assert all(index[f"p.s{i}"]["state"] == "complete" for i in (1, 3, 4))

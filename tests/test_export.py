@@ -105,6 +105,14 @@ def test_export_front_designs_with_mesh(tmp_path):
         assert side["provenance"]["run"] == "p.s1"
         assert side["cl"] == pytest.approx(0.5)
         assert (d / "mesh.msh").read_text()[:11] == "$MeshFormat"
+        # the exported front design's coordinates re-evaluate to its figures (fit, 24 terms)
+        coords = load_coordinates(d / "coordinates.dat")
+        fit = fit_section(coords.xy, coords.le_index, 24)
+        back = evaluate(SectionSet(fit.coefficients[None, :], [fit.te_angle]),
+                        alpha=math.radians(side["alpha_deg"]))
+        assert back.cl[0] == pytest.approx(side["cl"], abs=5e-3)
+        assert back.cp_min[0] == pytest.approx(side["cp_min"], abs=2e-2)
+        assert side["objectives"]["peak_suction"] == pytest.approx(-side["cp_min"], rel=1e-9)
     r = cli("export", folder, "--all", "-o", tmp_path / "all")
     assert r.returncode == 0, r.stderr
 

@@ -80,8 +80,11 @@ def folder_status(out: Path) -> dict:
 
 
 def format_status(st: dict) -> str:
-    head = f"study {st['study']} in {st['folder']}: " + ", ".join(
+    rate = st.get("evaluations_per_s")
+    head = (f"study {st['study']} in {st['folder']}: " + ", ".join(
         f"{n} {k}" for k, n in sorted(st["counts"].items()))
+        + f"; {st['evaluations']} evaluations"
+        + (f", {rate:.0f} per second of search" if rate else ""))
     lines = [head, ""]
     cols = f"{'run':<28} {'state':<11} {'gens':>6} {'evals':>8} {'best feasible':>14} {'time s':>8}"
     lines += [cols, "-" * len(cols)]
