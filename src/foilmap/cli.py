@@ -687,7 +687,15 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _terminate(signum, frame):  # noqa: ARG001 - signal handler signature
+    raise SystemExit(128 + signum)
+
+
 def main(argv: list[str] | None = None) -> int:
+    import signal
+
+    # SIGTERM (a batch scheduler's walltime, a kill) closes files and stops workers cleanly
+    signal.signal(signal.SIGTERM, _terminate)
     try:
         args = build_parser().parse_args(argv)
         return args.func(args)
@@ -703,6 +711,11 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("foilmap: interrupted", file=sys.stderr)
         return 130
+    except SystemExit as exc:
+        if isinstance(exc.code, int) and exc.code > 128:
+            print("foilmap: terminated; unfinished runs resume with foilmap resume",
+                  file=sys.stderr)
+        raise
 
 
 if __name__ == "__main__":  # pragma: no cover

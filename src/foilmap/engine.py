@@ -230,6 +230,12 @@ def _worker(text: str, source: str, base_dir: str, budget, run_id: str, out: str
     for _ in range(RUN_ATTEMPTS):
         try:
             return execute_run(study, run, Path(out), report)
+        except SystemExit as exc:
+            # SIGTERM in a pool process: the log is closed by now; leave at once rather than
+            # wait for tasks from a driver that may be gone
+            if _QUEUE is not None:
+                os._exit(exc.code if isinstance(exc.code, int) else 143)
+            raise
         except Exception as exc:  # a failing run is recorded, the study goes on
             error = f"{type(exc).__name__}: {exc}"
     return {"run": run_id, "state": "failed", "error": error, "attempts": RUN_ATTEMPTS}
