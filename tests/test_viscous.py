@@ -85,3 +85,36 @@ def test_screen_command_json(tmp_path):
     assert 0.004 < rec["cd"] < 0.012
     assert 0 < rec["upper"]["x_transition"] < rec["lower"]["x_transition"] < 1
     assert "not a replacement for a viscous solver" in rec["note"]
+
+
+def test_profile_drag_as_a_study_objective():
+    from foilmap.objectives import Problem
+    from foilmap.study import parse_study
+
+    text = """
+[study]
+name = "drag"
+seeds = [1]
+[shape]
+coefficients = 4
+[[point]]
+name = "p"
+cl = 0.4
+reynolds = 3.0e6
+[objectives]
+profile_drag = 1.0
+"""
+    st = parse_study(text)
+    run = st.runs()[0]
+    prob = Problem.from_run(st, run)
+    x = prob.param.x0()[None, :].repeat(3, axis=0)
+    x[1:, 0] += [0.3, -0.3]
+    out = prob.evaluate(x)
+    assert out.status.tolist() == [0, 0, 0]
+    # the objective is the screening's Cd of the same sections at the design Cl
+    an = analyse(prob.param.sections(x), cl=0.4)
+    np.testing.assert_allclose(out.objectives[:, 0], screen_analysis(an, 3e6, points=256).cd,
+                               rtol=1e-12)
+    assert np.all((0.003 < out.objectives[:, 0]) & (out.objectives[:, 0] < 0.02))
+    with pytest.raises(Exception, match="objective profile_drag needs 'reynolds'"):
+        parse_study(text.replace("reynolds = 3.0e6\n", ""))

@@ -143,6 +143,12 @@ class Problem:
             "cm_magnitude": np.abs(ev.cm_quarter_chord),
             "area": ev.area,
         }
+        if "profile_drag" in self.objective_names:
+            from .viscous import screen_analysis
+
+            # the screening on the search's own circle grid (exact speeds at its samples)
+            values["profile_drag"] = screen_analysis(an, self.point.reynolds,
+                                                     points=self.points).cd
         obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
         weights = np.array([w for _, w in self.objectives])
         g = self._constraints(ev, an, peak)

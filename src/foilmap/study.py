@@ -39,6 +39,7 @@ OBJECTIVES = {
     "laminar_deficit": "1 - x/c of Thwaites laminar separation on the upper surface",
     "cm_magnitude": "|Cm| about the quarter chord",
     "area": "cross-section area in chord^2",
+    "profile_drag": "Cd of the integral boundary-layer screening (needs reynolds)",
 }
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
@@ -347,10 +348,11 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) 
                   if v is not None}
     if not any(w > 0 for w in objectives.values()):
         _fail(where, "[objectives]: at least one weight must be positive")
-    if "stratford_margin" in objectives:
-        for p in points:
-            if p.reynolds is None:
-                _fail(where, f"objective stratford_margin needs 'reynolds' at point {p.name!r}")
+    for needs_re in ("stratford_margin", "profile_drag"):
+        if needs_re in objectives:
+            for p in points:
+                if p.reynolds is None:
+                    _fail(where, f"objective {needs_re} needs 'reynolds' at point {p.name!r}")
     cons = _table(where, "constraints", data.get("constraints"), SCHEMA["constraints"])
     cons = {k: v for k, v in cons.items() if v is not None}
     search = _table(where, "search", data.get("search"), SCHEMA["search"])
