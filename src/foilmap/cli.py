@@ -419,7 +419,9 @@ def cmd_screen(args) -> int:
         return "-" if v is None else f"{v:.4f}"
     print(f"foilmap screen | {rec.name} | Cl {out['cl']:.4f} at {out['alpha_deg']:.3f} deg | "
           f"Re {args.re:.3g}")
-    print(f"  profile drag Cd (Squire-Young at x/c = {DRAG_STATION})   {fx(out['cd'])}")
+    cd_text = fx(out["cd"]) if out["cd"] is not None else (
+        "not estimated: turbulent separation (the method does not hold past it)")
+    print(f"  profile drag Cd (Squire-Young at x/c = {DRAG_STATION})   {cd_text}")
     for side in ("upper", "lower"):
         r = out[side]
         how = " (at laminar separation)" if r["transition_by_laminar_separation"] else ""

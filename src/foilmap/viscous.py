@@ -14,7 +14,9 @@ surface from the stagnation point:
   H = 2.4 (common practice);
 * drag: Squire & Young's formula Cd = Σ 2 θ u^((H + 5)/2) over both surfaces, at the station
   ``drag_station`` (the ideal flow stagnates at a finite-angle trailing edge, so the formula is
-  taken where the ideal speed is still representative; default 0.95 chord).
+  taken where the ideal speed is still representative; default 0.95 chord).  The formula does
+  not hold past a turbulent separation: where either surface separates before the drag station
+  Cd is NaN (as an objective, such a design ranks below every attached one).
 
 The marching loops over stations (an ODE is sequential) and is vectorised over candidates.
 """
@@ -243,9 +245,11 @@ def screen_analysis(analysis, reynolds: float, drag_station: float = DRAG_STATIO
         last = m - 1 - np.argmax(mask[:, ::-1], axis=1)
         r = np.arange(nb)
         th, h = lay.theta[r, last], lay.shape[r, last]
-        # Squire–Young: Cd = 2 θ u^((H + 5)/2) at the drag station, per surface
+        # Squire–Young: Cd = 2 θ u^((H + 5)/2) at the drag station, per surface; it does not
+        # hold past a turbulent separation, so a separated surface leaves Cd undefined (NaN)
+        separated = np.isfinite(lay.s_turbulent_separation)
         with np.errstate(all="ignore"):
-            cd = cd + 2.0 * th * u_end ** ((h + 5.0) / 2.0)
+            cd = cd + np.where(separated, np.nan, 2.0 * th * u_end ** ((h + 5.0) / 2.0))
         out["xt"][name] = _x_of(sf, lay.s_transition)
         out["bysep"][name] = lay.transition_by_separation
         out["xls"][name] = _x_of(sf, lay.s_laminar_separation)
