@@ -21,6 +21,8 @@ import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from pathlib import Path
 
+import numpy as np
+
 from . import __version__
 from .errors import InputError
 from .objectives import Problem
@@ -59,7 +61,15 @@ def _summary(run: RunSpec, log_path: Path) -> dict:
             "best_objectives": None if best is None else dict(
                 zip(log.objective_names, map(float, best["objectives"]))),
             "resumes": log.resumes,
-            "elapsed_s": float(log.gen["time"][-1]) if log.generations else None}
+            "elapsed_s": float(log.gen["time"][-1]) if log.generations else None,
+            "hypervolume": _last_hv(log)}
+
+
+def _last_hv(log) -> float | None:
+    hv = log.gen.get("hypervolume")
+    if hv is None or not hv.size or not np.isfinite(hv[-1]):
+        return None
+    return float(hv[-1])
 
 
 def execute_run(study: Study, run: RunSpec, out: Path, report=None) -> dict:
@@ -208,7 +218,7 @@ def _init_worker(queue) -> None:
 
 #: what the index keeps of a finished run (so that status need not open complete logs)
 _INDEXED = ("state", "generations", "evaluations", "best", "best_objectives", "resumes",
-            "elapsed_s")
+            "elapsed_s", "hypervolume")
 #: attempts of a run inside one task before it is recorded as failed (each resumes from the
 #: run's own checkpoint)
 RUN_ATTEMPTS = 3

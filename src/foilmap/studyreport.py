@@ -37,13 +37,14 @@ def folder_status(out: Path) -> dict:
         row = {"run": run.run_id, "seed": run.seed, "point": run.point.name,
                "variant": run.variant, "state": entry.get("state", "pending"),
                "generations": 0, "evaluations": 0, "best": None, "best_objectives": None,
-               "elapsed_s": None, "resumes": 0, "file": str(log_path.relative_to(out))}
+               "hypervolume": None, "elapsed_s": None, "resumes": 0,
+               "file": str(log_path.relative_to(out))}
         if "error" in entry:
             row["error"] = entry["error"]
         if entry.get("state") == "complete" and "generations" in entry:
             # a finished run: its index entry holds what status shows (no log to open)
             for k in ("generations", "evaluations", "best", "best_objectives", "resumes",
-                      "elapsed_s"):
+                      "elapsed_s", "hypervolume"):
                 if k in entry:
                     row[k] = entry[k]
         elif log_path.exists():
@@ -67,6 +68,9 @@ def folder_status(out: Path) -> dict:
                                                       map(float, best["objectives"])))
                 if log.generations:
                     row["elapsed_s"] = float(log.gen["time"][-1])
+                    hv = log.gen.get("hypervolume")
+                    if hv is not None and np.isfinite(hv[-1]):
+                        row["hypervolume"] = float(hv[-1])
         rows.append(row)
     counts = {}
     for r in rows:
@@ -86,10 +90,13 @@ def format_status(st: dict) -> str:
         + f"; {st['evaluations']} evaluations"
         + (f", {rate:.0f} per second of search" if rate else ""))
     lines = [head, ""]
-    cols = f"{'run':<28} {'state':<11} {'gens':>6} {'evals':>8} {'best feasible':>14} {'time s':>8}"
+    cols = (f"{'run':<28} {'state':<11} {'gens':>6} {'evals':>8} {'best feasible':>14} "
+            f"{'time s':>8}")
     lines += [cols, "-" * len(cols)]
     for r in st["runs"]:
         best = "-" if r["best"] is None else f"{r['best']:.6g}"
+        if r["best"] is None and r.get("hypervolume") is not None:
+            best = f"HV {r['hypervolume']:.5g}"  # a multi-objective run's measure
         el = "-" if r["elapsed_s"] is None else f"{r['elapsed_s']:.1f}"
         lines.append(f"{r['run']:<28} {r['state']:<11} {r['generations']:>6} "
                      f"{r['evaluations']:>8} {best:>14} {el:>8}")
