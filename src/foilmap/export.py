@@ -102,7 +102,7 @@ def add_te_thickness(xy: np.ndarray, thickness: float) -> tuple[np.ndarray, floa
     return out, float(np.max(np.abs(out[:, 1] - xy[:, 1])))
 
 
-def _surface_table(analysis, reynolds) -> str:
+def _surface_table(analysis) -> str:
     """Distributions along both surfaces from the stagnation point, as CSV text."""
     from .boundary_layer import thwaites
     from .conformal import CircleGrid, map_on_grid
@@ -134,7 +134,6 @@ def _surface_table(analysis, reynolds) -> str:
             w.writerow([f"{sf.x[0, i]:.8f}", f"{sf.y[0, i]:.8f}", name, f"{1 - u * u:.8f}",
                         f"{u:.8f}", f"{s:.8f}", f"{sf.du_ds[0, i]:.6e}", f"{m:.6e}",
                         f"{lam[i]:.6e}"])
-    del reynolds
     return buf.getvalue()
 
 
@@ -189,7 +188,7 @@ def export_designs(designs: list[Design], out: Path, *, points: int = 201,
             if an_c.evaluation.status[0] != 0:
                 continue
             fname = f"surface-cl{c:.3f}.csv"
-            write_text_atomic(folder / fname, _surface_table(an_c, d.reynolds))
+            write_text_atomic(folder / fname, _surface_table(an_c))
             tables.append(fname)
         screen = None
         if d.reynolds is not None:
