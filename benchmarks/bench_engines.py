@@ -4,7 +4,7 @@ Usage::
 
     python benchmarks/bench_engines.py [--json] [--runs 40] [--evals 120]
 
-Each configuration runs the same study of short runs into a fresh folder; the Dask figure
+Each configuration runs the same study of short runs of the demo problem into a fresh folder; the Dask figure
 includes starting and stopping the LocalCluster, as a user's command does.
 """
 
@@ -14,27 +14,17 @@ import argparse
 import json
 import tempfile
 import time
+from importlib.resources import files
 from pathlib import Path
 
 from foilmap.engine import run_study
 from foilmap.study import parse_study
 
-STUDY = """
-[study]
-name = "bench"
-seeds = [{seeds}]
-[shape]
-coefficients = 4
-[[point]]
-name = "p"
-cl = 0.5
-[objectives]
-peak_suction = 1.0
-[constraints]
-min_thickness = 0.10
-[search]
-max_evaluations = {evals}
-"""
+def bench_study(runs: int, evals: int):
+    """The demo problem with ``runs`` seeds of ``evals`` evaluations each (invented data)."""
+    text = files("foilmap").joinpath("data/demo.toml").read_text()
+    text = text.replace("seeds = [1, 2, 3, 4]", f"seeds = {list(range(1, runs + 1))}")
+    return parse_study(text).with_budget(evals)
 
 
 def main() -> None:
@@ -43,8 +33,7 @@ def main() -> None:
     ap.add_argument("--runs", type=int, default=40)
     ap.add_argument("--evals", type=int, default=120)
     args = ap.parse_args()
-    st = parse_study(STUDY.format(seeds=", ".join(map(str, range(1, args.runs + 1))),
-                                  evals=args.evals))
+    st = bench_study(args.runs, args.evals)
     rows = []
     for engine in ("local", "dask"):
         for workers in (1, 2):

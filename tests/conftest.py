@@ -12,7 +12,52 @@ ROOT = Path(__file__).resolve().parents[1]
 # the panel method lives in benchmarks/ (the peer of the conformal kernel, not in the package)
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
+import subprocess  # noqa: E402
+
 from foilmap import SectionSet, offset_circle_coefficients  # noqa: E402
+
+#: a 12 % section with a 10° trailing edge, written by hand (test data, invented)
+SECTION_TEXT = """
+[section]
+name = "test-section"
+te_angle_deg = 10.0
+coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
+"""
+
+
+def cli(*args, cwd=None, timeout=300):
+    """Run the foilmap command in a subprocess, as a user would."""
+    return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
+                          capture_output=True, text=True, cwd=cwd, timeout=timeout)
+
+
+def small_study(name: str, seeds, evals: int, objectives: str = "peak_suction = 1.0",
+                constraints: str = "min_thickness = 0.10", extra: str = "") -> str:
+    """Text of a small study of 4-coefficient sections at Cl 0.5 (test data, invented)."""
+    return f"""
+# test study (invented data)
+[study]
+name = "{name}"
+seeds = [{", ".join(map(str, seeds))}]
+[shape]
+coefficients = 4
+[[point]]
+name = "p"
+cl = 0.5
+[objectives]
+{objectives}
+[constraints]
+{constraints}
+{extra}[search]
+max_evaluations = {evals}
+"""
+
+
+@pytest.fixture
+def section_file(tmp_path):
+    p = tmp_path / "section.toml"
+    p.write_text(SECTION_TEXT)
+    return p
 
 
 def joukowski(mu: complex, tau_deg: float = 0.0, n: int = 24) -> SectionSet:

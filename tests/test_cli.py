@@ -4,40 +4,22 @@ from __future__ import annotations
 
 import csv
 import json
-import subprocess
-import sys
 
 import numpy as np
 import pytest
 
+from conftest import SECTION_TEXT, cli
+
 from foilmap import analyse, load_section
 
-SECTION = """
-[section]
-name = "cli-test"
-te_angle_deg = 10.0
-coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
-"""
 JSON_KEYS = {"cl", "alpha_deg", "alpha_zero_lift_deg", "cm_quarter_chord", "cp_min", "cp_min_x",
              "thickness", "thickness_x", "camber", "camber_x", "le_radius", "te_angle_deg",
              "area", "status"}
 
 
-def run(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
-                          capture_output=True, text=True, cwd=cwd, timeout=120)
-
-
-@pytest.fixture
-def section_file(tmp_path):
-    p = tmp_path / "sec.toml"
-    p.write_text(SECTION)
-    return p
-
-
 def test_evaluate_json_and_table(section_file, tmp_path):
     table = tmp_path / "cp.csv"
-    r = run("evaluate", section_file, "--cl", "0.5", "--json", "--table", table)
+    r = cli("evaluate", section_file, "--cl", "0.5", "--json", "--table", table)
     assert r.returncode == 0, r.stderr
     rec = json.loads(r.stdout)
     assert JSON_KEYS <= rec.keys()
@@ -56,7 +38,7 @@ def test_evaluate_json_and_table(section_file, tmp_path):
 
 
 def test_evaluate_human_table(section_file):
-    r = run("evaluate", section_file, "--alpha", "3", "--re", "2e6")
+    r = cli("evaluate", section_file, "--alpha", "3", "--re", "2e6")
     assert r.returncode == 0, r.stderr
     assert "Stratford margin" in r.stdout and "Cm c/4" in r.stdout
     assert "viscous analysis" in r.stdout
@@ -64,10 +46,10 @@ def test_evaluate_human_table(section_file):
 
 def test_coords_layout(section_file, tmp_path):
     out = tmp_path / "c.dat"
-    r = run("coords", section_file, "-n", "81", "-o", out)
+    r = cli("coords", section_file, "-n", "81", "-o", out)
     assert r.returncode == 0, r.stderr
     lines = out.read_text().splitlines()
-    assert lines[0].startswith("cli-test")
+    assert lines[0].startswith("test-section")
     xy = np.loadtxt(lines[1:])
     assert xy.shape == (81, 2)
     assert tuple(xy[0]) == (1.0, 0.0) and tuple(xy[-1]) == (1.0, 0.0)
@@ -85,7 +67,7 @@ def test_coords_layout(section_file, tmp_path):
 
 def test_plot_writes_png(section_file, tmp_path):
     out = tmp_path / "p.png"
-    r = run("plot", section_file, "--cl", "0.6", "-o", out)
+    r = cli("plot", section_file, "--cl", "0.6", "-o", out)
     assert r.returncode == 0, r.stderr
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
@@ -110,9 +92,9 @@ def test_plot_writes_png(section_file, tmp_path):
 )
 def test_bad_input_one_line_exit_2(section_file, tmp_path, args, message):
     bad = tmp_path / "bad.toml"
-    bad.write_text(SECTION.replace("10.0", "99.0"))
+    bad.write_text(SECTION_TEXT.replace("10.0", "99.0"))
     subs = {"sec": section_file, "missing": tmp_path / "none.toml", "bad": bad, "tmp": tmp_path}
-    r = run(*[a.format(**subs) for a in args])
+    r = cli(*[a.format(**subs) for a in args])
     assert r.returncode == 2
     err = r.stderr.strip().splitlines()
     assert len(err) == 1, r.stderr
@@ -123,8 +105,8 @@ def test_bad_input_one_line_exit_2(section_file, tmp_path, args, message):
 
 def test_invalid_shape_is_one_line(tmp_path):
     p = tmp_path / "thin.toml"
-    p.write_text(SECTION.replace("[-0.075, 0.038]", "[-0.001, 0.0]"))
-    r = run("evaluate", p, "--alpha", "0")
+    p.write_text(SECTION_TEXT.replace("[-0.075, 0.038]", "[-0.001, 0.0]"))
+    r = cli("evaluate", p, "--alpha", "0")
     assert r.returncode == 2
     assert len(r.stderr.strip().splitlines()) == 1
     assert "not usable" in r.stderr

@@ -17,31 +17,13 @@ import pytest
 from foilmap.engine import run_study
 from foilmap.runlog import read_run
 from foilmap.study import parse_study
+from conftest import small_study
 from test_search import logs_equal
 
 pytestmark = pytest.mark.slow
 
-STUDY = """
-# test study (invented data)
-[study]
-name = "cluster"
-seeds = [{seeds}]
-[shape]
-coefficients = 4
-[[point]]
-name = "p"
-cl = 0.5
-[objectives]
-peak_suction = 1.0
-[constraints]
-min_thickness = 0.10
-[search]
-max_evaluations = {evals}
-"""
-
-
 def study(n: int, evals: int):
-    return parse_study(STUDY.format(seeds=", ".join(map(str, range(1, n + 1))), evals=evals))
+    return parse_study(small_study("cluster", range(1, n + 1), evals))
 
 
 def all_equal(a: Path, b: Path, st) -> None:

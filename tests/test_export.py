@@ -5,42 +5,22 @@ from __future__ import annotations
 import csv
 import json
 import math
-import subprocess
 import sys
 
 import numpy as np
 import pytest
+from conftest import cli
 from panel import panel_solve
 
 from foilmap import SectionSet, evaluate
 from foilmap.coordfile import load_coordinates
 from foilmap.fitting import fit_section
 
-SECTION = """
-[section]
-name = "export-test"
-te_angle_deg = 10.0
-coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
-"""
-
-
-def cli(*args):
-    return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
-                          capture_output=True, text=True, timeout=300)
-
-
-@pytest.fixture
-def section_file(tmp_path):
-    p = tmp_path / "s.toml"
-    p.write_text(SECTION)
-    return p
-
-
 def test_export_of_a_section_re_evaluates(tmp_path, section_file):
     out = tmp_path / "out"
     r = cli("export", section_file, "--cl", "0.5", "--re", "3e6", "--points", "241", "-o", out)
     assert r.returncode == 0, r.stderr
-    folder = out / "export-test"
+    folder = out / "test-section"
     for name in ("coordinates.dat", "design.json", "section.png", "surface-cl0.500.csv"):
         assert (folder / name).exists(), name
     side = json.loads((folder / "design.json").read_text())
@@ -48,7 +28,7 @@ def test_export_of_a_section_re_evaluates(tmp_path, section_file):
     assert side["cl"] == pytest.approx(0.5) and 0.004 < side["screening"]["cd"] < 0.012
     rows = list(csv.DictReader(line for line in (out / "summary.csv").read_text().splitlines()
                                if not line.startswith("#")))
-    assert len(rows) == 1 and rows[0]["design"] == "export-test"
+    assert len(rows) == 1 and rows[0]["design"] == "test-section"
     # the exported coordinates fitted back: Cl and Cp at the exported angle (tolerances: the
     # fit's deviation, ~1e-5 chords here, moves Cl by under 2e-3 and Cp by under 1e-2)
     coords = load_coordinates(folder / "coordinates.dat")
@@ -76,13 +56,13 @@ def test_trailing_edge_thickness_blend(tmp_path, section_file):
     r = cli("export", section_file, "--alpha", "2", "--te-thickness", "0.005", "--spacing",
             "curvature", "-o", out)
     assert r.returncode == 0, r.stderr
-    xy = np.loadtxt((out / "export-test" / "coordinates.dat").read_text().splitlines()[1:])
+    xy = np.loadtxt((out / "test-section" / "coordinates.dat").read_text().splitlines()[1:])
     assert xy[0, 1] - xy[-1, 1] == pytest.approx(0.005, abs=1e-12)
     le = int(np.argmin(np.hypot(*xy.T)))
     assert tuple(xy[le]) == (0.0, 0.0)  # the leading edge does not move
-    side = json.loads((out / "export-test" / "design.json").read_text())
+    side = json.loads((out / "test-section" / "design.json").read_text())
     assert side["coordinates"]["largest_shift_by_te_blend"] == pytest.approx(0.0025, abs=1e-9)
-    assert "0.005 chords thick" in (out / "export-test" / "coordinates.dat").read_text()
+    assert "0.005 chords thick" in (out / "test-section" / "coordinates.dat").read_text()
 
 
 def test_export_front_designs_with_mesh(tmp_path):

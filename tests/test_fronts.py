@@ -14,6 +14,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from conftest import cli, small_study
+
 from foilmap import load_section
 from foilmap.engine import execute_run, prepare_folder
 from foilmap.fronts import FrontError, hypervolume, knee_index, merge_archive, nondominated_mask
@@ -120,29 +122,11 @@ def test_comocma_front_approaches_the_exact_sphere_front():
 
 # --- multi-objective runs through the engine -----------------------------------------------------
 
-MO_STUDY = """
-# test study (invented data)
-[study]
-name = "mo"
-seeds = [1, 2]
-[shape]
-coefficients = 4
-[[point]]
-name = "p"
-cl = 0.5
-[objectives]
-peak_suction = 1.0
-severity = 1.0
-[constraints]
-min_thickness = 0.10
-min_le_radius = 0.006
-[fronts]
-reference_point = [2.0, 2.0]
-[search]
-method = "comocma"
-kernels = 6
-max_evaluations = 900
-"""
+MO_STUDY = small_study(
+    "mo", [1, 2], 900, objectives="peak_suction = 1.0\nseverity = 1.0",
+    constraints="min_thickness = 0.10\nmin_le_radius = 0.006",
+    extra='[fronts]\nreference_point = [2.0, 2.0]\n').replace(
+    "[search]\n", '[search]\nmethod = "comocma"\nkernels = 6\n')
 
 
 def run_folder(tmp_path, name, text=MO_STUDY, budget=None):
@@ -219,11 +203,6 @@ def test_epsilon_sweep_merges_into_one_front_per_seed(tmp_path):
 
 
 # --- the commands --------------------------------------------------------------------------------
-
-
-def cli(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
-                          capture_output=True, text=True, timeout=300, cwd=cwd)
 
 
 def test_fronts_and_pick_commands(tmp_path):
