@@ -239,3 +239,12 @@ def test_bad_study_input_writes_nothing(tmp_path, args, message):
     assert r.returncode == 2
     assert len(r.stderr.strip().splitlines()) == 1 and message in r.stderr
     assert set(tmp_path.iterdir()) == before  # nothing written, no results/ folder
+
+
+def test_a_budget_set_on_the_study_reaches_the_workers(tmp_path):
+    # regression: workers re-read the study text, which keeps its own budget
+    from foilmap.engine import run_study
+
+    st = parse_study(STUDY).with_budget(60)
+    summ = run_study(st, tmp_path / "b", workers=1)
+    assert all(60 <= s["evaluations"] < 60 + 20 for s in summ)

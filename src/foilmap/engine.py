@@ -282,7 +282,9 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     The same study and seeds give the same logs on every engine.
     """
     out = Path(out)
-    study = prepare_folder(study, out, budget)
+    # a budget set on the study object travels to the workers like --budget (they re-read the
+    # study's text, which keeps its own)
+    study = prepare_folder(study, out, budget if budget is not None else study.budget)
     budget = _read_options(out).get("budget")
     runs = study.runs()
     workers = max(1, min(workers or os.cpu_count() or 1, len(runs)))

@@ -279,6 +279,7 @@ class Study:
     base_dir: str = "."  # folder that relative paths in the study (shape.start) are read from
     reference_point: tuple[float, ...] | None = None  # [fronts] reference_point
     engine: dict = field(default_factory=lambda: {"kind": "local", "scheduler": "", "workers": 0})
+    budget: int | None = None  # a budget set by with_budget (the text keeps the study's own)
 
     def runs(self) -> list[RunSpec]:
         """Expand into runs: variants × points × seeds, in that order."""
@@ -306,7 +307,7 @@ class Study:
             for n, o in self.variants)
         return Study(self.name, self.description, self.seeds, self.shape, self.points,
                      self.objectives, self.constraints, search, variants, self.text, self.source,
-                     self.base_dir, self.reference_point, self.engine)
+                     self.base_dir, self.reference_point, self.engine, int(evals))
 
 
 def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
