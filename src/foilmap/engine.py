@@ -72,10 +72,13 @@ def _last_hv(log) -> float | None:
     return float(hv[-1])
 
 
-def execute_run(study: Study, run: RunSpec, out: Path, report=None) -> dict:
+def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=None) -> dict:
     """Run (or resume, or skip if complete) one run of a study; returns a summary.
 
     ``report``, if given, is called with a progress dict after every generation.
+    ``should_stop``, if given, is asked after every generation: when it answers True the run
+    commits what it has (log rows, then the checkpoint), closes its log and raises
+    ``SystemExit(143)``; ``foilmap resume`` continues it bit-identically.
     """
     from .search import is_finished, new_search, step
 
@@ -128,6 +131,10 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None) -> dict:
         while not is_finished(state):
             gen, _ = step(state, problem, run.search)
             pending.append(gen)
+            if should_stop is not None and should_stop():
+                writer.append(pending)
+                save_checkpoint(ckpt_path, state)
+                raise SystemExit(143)
             if time.monotonic() - last >= COMMIT_INTERVAL or is_finished(state):
                 writer.append(pending)  # write and flush the generations first ...
                 save_checkpoint(ckpt_path, state)  # ... then the checkpoint, atomically
@@ -208,11 +215,22 @@ def write_index(study: Study, out: Path, states: dict[str, dict]) -> None:
 # --- the local process pool --------------------------------------------------------------------
 
 
+#: set by SIGTERM in a worker process while it runs a run: the run stops at the end of its
+#: generation, after committing (raising from the signal handler itself could land inside an
+#: HDF5 call and leave the log half-flushed)
+_STOP = {"requested": False, "in_run": False}
+
+
+def _on_sigterm(*_) -> None:
+    if not _STOP["in_run"]:
+        os._exit(143)  # idle: nothing to commit
+    _STOP["requested"] = True
+
+
 def _init_worker(queue) -> None:
     global _QUEUE
     _QUEUE = queue
-    # a batch scheduler's SIGTERM closes files cleanly through SystemExit
-    signal.signal(signal.SIGTERM, lambda *_: (_ for _ in ()).throw(SystemExit(143)))
+    signal.signal(signal.SIGTERM, _on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
 
 
@@ -236,18 +254,27 @@ def _worker(text: str, source: str, base_dir: str, budget, run_id: str, out: str
     run = next(r for r in study.runs() if r.run_id == run_id)
     q = _QUEUE
     report = (lambda m: q.put(m)) if q is not None else None
+    stop = (lambda: _STOP["requested"]) if q is not None else None
     error = None
-    for _ in range(RUN_ATTEMPTS):
-        try:
-            return execute_run(study, run, Path(out), report)
-        except SystemExit as exc:
-            # SIGTERM in a pool process: the log is closed by now; leave at once rather than
-            # wait for tasks from a driver that may be gone
-            if _QUEUE is not None:
-                os._exit(exc.code if isinstance(exc.code, int) else 143)
-            raise
-        except Exception as exc:  # a failing run is recorded, the study goes on
-            error = f"{type(exc).__name__}: {exc}"
+    _STOP["in_run"] = True
+    try:
+        for _ in range(RUN_ATTEMPTS):
+            if _STOP["requested"]:
+                break
+            try:
+                return execute_run(study, run, Path(out), report, stop)
+            except SystemExit as exc:
+                # SIGTERM in a pool process: the run has committed and closed its log; leave at
+                # once rather than wait for tasks from a driver that may be gone
+                if _QUEUE is not None:
+                    os._exit(exc.code if isinstance(exc.code, int) else 143)
+                raise
+            except Exception as exc:  # a failing run is recorded, the study goes on
+                error = f"{type(exc).__name__}: {exc}"
+    finally:
+        _STOP["in_run"] = False
+    if _STOP["requested"] and _QUEUE is not None:
+        os._exit(143)
     return {"run": run_id, "state": "failed", "error": error, "attempts": RUN_ATTEMPTS}
 
 
