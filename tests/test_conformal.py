@@ -97,25 +97,16 @@ def test_validity_does_not_depend_on_sampling():
 
 
 def test_crossing_the_branch_cut_is_detected():
-    # a synthetic near-circle through z₁ = 1.2 whose top is dented down through the real axis
-    # at |x| < 1: the Kármán–Trefftz branch cut [−1, 1] is crossed
-    from foilmap.conformal import MapValues, singular_point_check
+    # the circle through ζ = 1 with centre μ = +0.1 meets the real axis again at −0.8, inside
+    # the Kármán–Trefftz cut [−1, 1]: z₁ = −1 lies outside it (test data, invented)
+    from foilmap import evaluate
     from foilmap.status import Status
 
-    grid = CircleGrid.get(256, 1)
-    phi = grid.phi
-    dent = 1.5j * np.exp(-(((phi - np.pi / 2) / 0.3) ** 2))
-    g = (1.2 * np.exp(1j * phi) - dent)[None, :]
-    mv = MapValues(grid.zeta[None, :], g, g, g, g, g)
-    sec = SectionSet(np.zeros((1, 1)), [0.0])
-    status, _ = singular_point_check(sec, mv, grid, 0.02)
-    assert status[0] == Status.BRANCH_CUT
-    # and the undented curve passes
-    g0 = (1.2 * np.exp(1j * phi))[None, :]
-    status, dist = singular_point_check(sec, MapValues(grid.zeta[None, :], g0, g0, g0, g0, g0),
-                                        grid, 0.02)
-    assert status[0] == Status.OK
-    assert dist[0] == pytest.approx(0.2, abs=1e-3)
+    for points in (64, 256, 1024):
+        assert evaluate(joukowski(0.1 + 0.0j, 8.0), alpha=0.0, points=points).status[0] == \
+            Status.BRANCH_CUT
+    # and the usual offset circle (centre −0.08) passes
+    assert evaluate(joukowski(-0.08 + 0.0j, 8.0), alpha=0.0).status[0] == Status.OK
 
 
 def test_garbage_coefficients_give_status_codes_not_exceptions():

@@ -136,7 +136,7 @@ def test_best_design_meets_its_constraints_from_the_section_file(tmp_path):
 
 # --- real processes: kill, terminate, live status ----------------------------------------------
 
-SLOW = STUDY.replace("max_evaluations = 400", "max_evaluations = 3000").replace(
+SLOW = STUDY.replace("max_evaluations = 400", "max_evaluations = 15000").replace(
     "seeds = [3, 4]", "seeds = [3]")
 
 

@@ -196,6 +196,10 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) 
           f"{len(failed)} failed; logs in {out / 'runs'}")
     for s in failed:
         print(f"  run {s['run']} failed: {s.get('error', 'unknown error')}")
+    from .studyreport import sharp_nose_warnings
+
+    for line in sharp_nose_warnings(out):
+        print(line)
     return EXIT_OK if not failed else 1
 
 

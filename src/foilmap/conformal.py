@@ -269,10 +269,8 @@ def critical_points_inside(coefficients: np.ndarray, radius: float) -> np.ndarra
     """Whether every critical point of stage 1 lies strictly inside |ζ| < ``radius``.
 
     The critical points are the roots of p(ζ) = ζᴺ − Σ n Aₙ ζ^{N−n} (zeros of g').  The test is
-    the Schur–Cohn recursion on p(radius·ζ): all m roots of a degree-m polynomial lie inside the
-    unit circle iff |c_m| > |c₀| and the degree-(m−1) polynomial (conj(c_m) p − c₀ p*)/ζ has all
-    its roots inside (Rouché's theorem; Henrici, Applied and Computational Complex Analysis,
-    vol. 1, §6.8).  Exact apart from round-off, independent of any sampling.
+    the Schur–Cohn recursion on p(radius·ζ) (Henrici, Applied and Computational Complex
+    Analysis, vol. 1, §6.8), exact apart from round-off and independent of any sampling.
 
     Parameters
     ----------
@@ -284,72 +282,7 @@ def critical_points_inside(coefficients: np.ndarray, radius: float) -> np.ndarra
     -------
     ndarray of bool, shape (B,)
     """
-    c = np.asarray(coefficients, dtype=complex)
-    nb, n = c.shape
-    m = np.arange(1, n + 1)
-    # ascending coefficients of p(ζ): c_N = 1, c_{N−n} = −n Aₙ; then scale ζ → radius·ζ
-    poly = np.empty((nb, n + 1), dtype=complex)
-    poly[:, n] = 1.0
-    poly[:, n - m] = -m * c
-    poly *= radius ** np.arange(n + 1)
-    ok = np.ones(nb, dtype=bool)
-    for deg in range(n, 0, -1):
-        c0 = poly[:, 0]
-        cm = poly[:, deg]
-        ok &= np.abs(cm) > np.abs(c0)
-        star = np.conj(poly[:, ::-1])  # reciprocal polynomial p*(ζ) = ζ^m conj(p(1/conj ζ))
-        nxt = np.conj(cm)[:, None] * poly - c0[:, None] * star
-        poly = nxt[:, 1:]  # constant term vanishes: divide by ζ
-        lead = poly[:, -1:]
-        poly = np.where(ok[:, None], poly / np.where(lead == 0, 1.0, lead), 0.0)
-        poly[~ok, -1] = 1.0
-    return ok
+    from . import _compiled
 
-
-def singular_point_check(
-    sections: SectionSet, mv: MapValues, grid: CircleGrid, margin: float
-) -> tuple[np.ndarray, np.ndarray]:
-    """Check that z₁ = −1 is inside the near-circle and that it does not cross [−1, 1].
-
-    Inside-ness is the parity of the crossings of the ray from −1 to −∞ (the winding number);
-    the branch cut is crossed when the near-circle meets the real axis inside (−1, 1) other than
-    at the trailing edge.  The distance from −1 to the near-circle is the grid minimum, refined to
-    1e-11 in circle angle for every row where the sampled distance, less 0.6 of the local sample
-    spacing, falls below the margin (elsewhere the curve cannot come nearer between samples).
-
-    Returns ``(status, distance)``: OK, SINGULAR_POINT or BRANCH_CUT per row, and the distance.
-    """
-    from ._numerics import refine_extremum
-
-    g = mv.g
-    d = np.abs(g + 1.0)
-    j = np.argmin(d, axis=1)
-    dist = d[np.arange(d.shape[0]), j]
-    # every point of the curve is within about half a sample spacing of a sample, so the true
-    # distance is at least min(d_j − 0.6 s_j), s_j the larger spacing next to sample j
-    gap = np.abs(np.diff(g, axis=1, append=g[:, :1]))
-    gap = np.maximum(gap, np.roll(gap, 1, axis=1))
-    bound = np.min(d - 0.6 * gap, axis=1)
-    near = np.flatnonzero(bound < margin)
-    if near.size:
-        sub = sections[near]
-
-        def dlog(phi, rows):  # d/dφ ln|g + 1| = −Im(ζ g' / (g + 1))
-            m = map_at(sub[rows], np.exp(1j * phi)[:, None])
-            return -np.imag(m.zeta * m.dg / (m.g + 1.0))[:, 0]
-
-        phi_c = refine_extremum(dlog, grid.phi, j[near], grid.step)
-        gc = map_at(sub, np.exp(1j * phi_c)[:, None]).g[:, 0]
-        dist[near] = np.minimum(np.abs(gc + 1.0), dist[near])
-    # real-axis crossings between consecutive samples (the pair around φ = 0 is the TE)
-    y0, y1 = g.imag[:, :-1], g.imag[:, 1:]
-    x0, x1 = g.real[:, :-1], g.real[:, 1:]
-    cross = (y0 > 0) != (y1 > 0)
-    with np.errstate(all="ignore"):
-        xc = x0 - y0 * (x1 - x0) / (y1 - y0)
-    left = np.count_nonzero(cross & (xc < -1.0), axis=1)
-    cut = np.count_nonzero(cross & (np.abs(xc) < 1.0), axis=1)
-    status = np.full(len(sections), Status.OK, dtype=np.int8)
-    status[cut > 0] = Status.BRANCH_CUT
-    status[(left % 2 != 1) | ~(dist > margin)] = Status.SINGULAR_POINT
-    return status, dist
+    c = np.ascontiguousarray(np.atleast_2d(coefficients), dtype=complex)
+    return _compiled.critical_batch(c, float(radius))

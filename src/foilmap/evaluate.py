@@ -13,15 +13,14 @@ from dataclasses import dataclass, fields
 import numpy as np
 
 from .boundary_layer import recovery_severity, stratford, thwaites
+from . import _compiled
 from .conformal import (
     DEFAULT_CRITICAL_MARGIN,
     DEFAULT_SINGULAR_MARGIN,
     CircleGrid,
     SectionSet,
-    critical_points_inside,
     map_at,
     map_on_grid,
-    singular_point_check,
 )
 from .flow import (
     flow_at_alpha,
@@ -38,7 +37,6 @@ from .geometry import (
     SurfaceSplit,
     chord_frame,
     coordinates,
-    geometry_status,
     section_geometry,
     split_surfaces,
 )
@@ -107,6 +105,16 @@ class Evaluation:
     def ok(self) -> np.ndarray:
         return self.status == Status.OK
 
+    @classmethod
+    def from_figures(cls, status: np.ndarray, figures: np.ndarray) -> "Evaluation":
+        """From the compiled kernel's output: status (B,) and figures (B, F) in the order of
+        :data:`foilmap._compiled.FIGURES`."""
+        from ._compiled import FIGURES
+
+        cols = {name: figures[:, i].copy() for i, name in enumerate(FIGURES)}
+        cols["cp_min_upper"] = cols["cp_min_upper"] == 1.0
+        return cls(status=status.astype(np.int8), **cols)
+
     def row(self, i: int) -> dict:
         """Figures of candidate ``i`` as a dict of Python scalars (NaN → None)."""
         out = {}
@@ -123,16 +131,19 @@ class Evaluation:
 
 
 def _x_at(surface, s_query: np.ndarray) -> np.ndarray:
-    """Chord station at arc length ``s_query`` (B,) along a surface (NaN passes through)."""
+    """Chord station at arc length ``s_query`` (B,) along a surface (NaN passes through; past
+    the last sample, the trailing edge x = 1)."""
     nb = s_query.shape[0]
     r = np.arange(nb)
-    j = np.argmax(surface.mask & (surface.s >= s_query[:, None]), axis=1)
+    reach = surface.mask & (surface.s >= s_query[:, None])
+    j = np.argmax(reach, axis=1)
     jm = np.where(surface.mask[r, np.maximum(j - 1, 0)] & (j > 0), j - 1, j)
     s0, s1 = surface.s[r, jm], surface.s[r, j]
     x0, x1 = surface.x[r, jm], surface.x[r, j]
     with np.errstate(all="ignore"):
         frac = np.where(s1 > s0, (s_query - s0) / (s1 - s0), 0.0)
-    return np.where(np.isfinite(s_query), x0 + frac * (x1 - x0), np.nan)
+    x = np.where(reach.any(axis=1), x0 + frac * (x1 - x0), 1.0)  # beyond the samples: the TE
+    return np.where(np.isfinite(s_query), x, np.nan)
 
 
 def evaluate(sections: SectionSet, **kwargs) -> Evaluation:
@@ -164,11 +175,10 @@ class Analysis:
         the section itself is invalid.
         """
         fl = flow_at_cl(self.sections, self.frame, cl)
-        with np.errstate(all="ignore"):
-            q = surface_speed(fl, self.map_values, self.grid)
-            q_pk, _ = peak_suction(self.sections, fl, q, self.grid)
         status = np.where(self.evaluation.status == Status.OK, fl.status,
                           self.evaluation.status).astype(np.int8)
+        with np.errstate(all="ignore"):
+            q_pk, _ = peak_suction(self.sections, _valid_only(fl, status), self.grid.points)
         peak = np.where(status == Status.OK, q_pk**2 - 1.0, np.nan)
         return peak, status
 
@@ -216,26 +226,24 @@ def analyse(
     nb = len(sections)
     grid = CircleGrid.get(points, max(sections.n_coefficients, 1))
     with np.errstate(all="ignore"):
-        status = np.where(
-            critical_points_inside(sections.coefficients, 1.0 - critical_margin),
-            Status.OK,
-            Status.CRITICAL_POINT,
-        ).astype(np.int8)
+        # validity certified between samples (the compiled checks: critical points, star shape,
+        # the second singular point, a simple contour, single-valued surfaces)
+        status = _compiled.validity_batch(np.ascontiguousarray(sections.coefficients),
+                                          sections.te_angle, points,
+                                          1.0 - critical_margin, singular_margin)
         mv = map_on_grid(sections, grid)
-        sp_status, _ = singular_point_check(sections, mv, grid, singular_margin)
-        status = np.where(status == Status.OK, sp_status, status).astype(np.int8)
         frame = chord_frame(sections, mv, grid)
         zc = frame.to_chord(mv.z)
         split = split_surfaces(zc, grid.phi, frame.phi_le)
         geom = section_geometry(sections, mv, grid, frame, split, zc=zc)
-        g_status = geometry_status(split, geom)
-        status = np.where(status == Status.OK, g_status, status).astype(np.int8)
         flow = flow_at_cl(sections, frame, cl) if cl is not None else flow_at_alpha(
             sections, frame, alpha
         )
         status = np.where(status == Status.OK, flow.status, status).astype(np.int8)
         q = surface_speed(flow, mv, grid)
-        q_pk, phi_pk = peak_suction(sections, flow, q, grid)
+        q_pk, phi_pk = peak_suction(
+            sections, _valid_only(flow, status), points)
+        phi_pk = np.where(np.isfinite(phi_pk), phi_pk, 0.0)
         zpk = frame.to_chord(map_at(sections, np.exp(1j * phi_pk)[:, None]).z)[:, 0]
         cm = moment_quarter_chord(sections, frame, flow)
         nan = np.full(nb, np.nan)
@@ -309,6 +317,13 @@ def analyse(
     upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
     ev = Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
     return Analysis(sections, ev, frame, flow, split, grid, mv)
+
+
+def _valid_only(flow: FlowState, status: np.ndarray) -> FlowState:
+    """The flow with its angle NaN where the candidate is invalid (no certification spent)."""
+    from dataclasses import replace
+
+    return replace(flow, alpha_circle=np.where(status == Status.OK, flow.alpha_circle, np.nan))
 
 
 def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarray:

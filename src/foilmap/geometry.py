@@ -14,7 +14,6 @@ import numpy as np
 
 from ._numerics import interp_rows, refine_extremum
 from .conformal import CircleGrid, MapValues, SectionSet, map_at
-from .status import Status
 
 __all__ = [
     "ChordFrame",
@@ -214,7 +213,6 @@ class Geometry:
     camber_x: np.ndarray
     le_radius: np.ndarray
     area: np.ndarray
-    min_thickness: np.ndarray  # smallest sampled thickness over the interior stations
 
 
 def section_geometry(
@@ -255,15 +253,7 @@ def section_geometry(
         "bp,bp->b", zc.imag, dzc.real
     )
     area *= grid.step
-    return Geometry(t_max, t_x, sign * c_abs, c_x, radius, area, t.min(axis=1))
-
-
-def geometry_status(split: SurfaceSplit, geom: Geometry) -> np.ndarray:
-    """FOLDED or NEGATIVE_THICKNESS where the sampled contour fails, else OK."""
-    status = np.full(split.key.shape[0], Status.OK, dtype=np.int8)
-    status[~(geom.min_thickness > 0)] = Status.NEGATIVE_THICKNESS
-    status[~split.monotone] = Status.FOLDED
-    return status
+    return Geometry(t_max, t_x, sign * c_abs, c_x, radius, area)
 
 
 def coordinates(

@@ -12,8 +12,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .evaluate import analyse
-from .geometry import thickness_at
+from . import _compiled
+from .conformal import DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN
+from .evaluate import Evaluation, analyse
+from .geometry import exact_points_at_x
 from .status import Status
 from .study import Parametrisation, Point, RunSpec, Study
 
@@ -59,8 +61,9 @@ class Problem:
         return [n for n, _ in self.objectives]
 
     def _specs(self) -> list[tuple[str, float, object]]:
-        """The study's constraints as (name, typical size, g(ev, an, peak) ≤ 0), in log order
-        (every bound is bound into its function as a default argument).
+        """The study's constraints as (name, typical size, g(ev, st, peak) ≤ 0), in log order
+        (every bound is bound into its function as a default argument; ``st`` holds the exact
+        thickness at the ``min_thickness_at`` stations, shape (B, M)).
 
         The search sees each g divided by its typical size (every g of order one for the
         augmented Lagrangian); the logs keep physical values.
@@ -68,31 +71,29 @@ class Problem:
         c = self.constraints
         specs = []
         if "min_thickness" in c:
-            specs.append(("min_thickness", 0.01, lambda ev, an, pk: c["min_thickness"] - ev.thickness))
+            specs.append(("min_thickness", 0.01, lambda ev, st, pk: c["min_thickness"] - ev.thickness))
         if "max_thickness" in c:
-            specs.append(("max_thickness", 0.01, lambda ev, an, pk: ev.thickness - c["max_thickness"]))
+            specs.append(("max_thickness", 0.01, lambda ev, st, pk: ev.thickness - c["max_thickness"]))
         if "thickness_x" in c:
             lo, hi = c["thickness_x"]
-            specs.append(("thickness_x_low", 0.05, lambda ev, an, pk, lo=lo: lo - ev.thickness_x))
+            specs.append(("thickness_x_low", 0.05, lambda ev, st, pk, lo=lo: lo - ev.thickness_x))
             specs.append(("thickness_x_high", 0.05,
-                          lambda ev, an, pk, hi=hi: ev.thickness_x - hi))
+                          lambda ev, st, pk, hi=hi: ev.thickness_x - hi))
         if "min_le_radius" in c:
             specs.append(("min_le_radius", 0.002,
-                          lambda ev, an, pk: c["min_le_radius"] - ev.le_radius))
+                          lambda ev, st, pk: c["min_le_radius"] - ev.le_radius))
         if "min_te_angle_deg" in c:
             tau = math.radians(c["min_te_angle_deg"])
-            specs.append(("min_te_angle", math.radians(1.0), lambda ev, an, pk: tau - ev.te_angle))
+            specs.append(("min_te_angle", math.radians(1.0), lambda ev, st, pk: tau - ev.te_angle))
         if "cm" in c:
             lo, hi = c["cm"]
-            specs.append(("cm_low", 0.01, lambda ev, an, pk, lo=lo: lo - ev.cm_quarter_chord))
-            specs.append(("cm_high", 0.01, lambda ev, an, pk, hi=hi: ev.cm_quarter_chord - hi))
-        for x, t in c.get("min_thickness_at", []):
-            def station(ev, an, pk, x=x, t=t):
-                yu, yl = thickness_at(an.split, np.array([x]))
-                return t - (yu - yl)[:, 0]
-            specs.append((f"thickness_at_{x:g}", 0.005, station))
+            specs.append(("cm_low", 0.01, lambda ev, st, pk, lo=lo: lo - ev.cm_quarter_chord))
+            specs.append(("cm_high", 0.01, lambda ev, st, pk, hi=hi: ev.cm_quarter_chord - hi))
+        for i, (x, t) in enumerate(c.get("min_thickness_at", [])):
+            specs.append((f"thickness_at_{x:g}", 0.005,
+                          lambda ev, st, pk, i=i, t=t: t - st[:, i]))
         if "max_peak_suction" in c:
-            specs.append(("max_peak_suction", 0.1, lambda ev, an, pk: pk - c["max_peak_suction"]))
+            specs.append(("max_peak_suction", 0.1, lambda ev, st, pk: pk - c["max_peak_suction"]))
         return specs
 
     @property
@@ -121,19 +122,20 @@ class Problem:
             p.append("stratford")
         return tuple(p)
 
+    @property
+    def stations(self) -> np.ndarray:
+        """Chord stations of the ``min_thickness_at`` constraints, shape (M,)."""
+        return np.array([x for x, _ in self.constraints.get("min_thickness_at", [])], dtype=float)
+
     def evaluate(self, y: np.ndarray) -> Outcome:
         """Objectives and constraints of the search vectors ``y`` (B, D)."""
         sec = self.param.sections(y)
-        proxies = self._proxies()
-        an = analyse(sec, cl=self.point.cl, points=self.points, proxies=proxies,
-                     reynolds=self.point.reynolds, proxy_end=self.proxy_end)
-        ev = an.evaluation
+        if "profile_drag" in self.objective_names:
+            ev, peak, st, extra = self._evaluate_reference(sec)
+        else:
+            ev, peak, st = self._evaluate_compiled(sec)
+            extra = {}
         status = ev.status.copy()
-        peak = -ev.cp_min
-        for cl in self.point.cls[1:]:
-            other, st = an.peak_suction_at(cl)
-            status = np.where(status == Status.OK, st, status).astype(np.int8)
-            peak = np.fmax(peak, other)
         values = {
             "peak_suction": peak,
             "severity": ev.severity,
@@ -142,16 +144,11 @@ class Problem:
                                               self.proxy_end, ev.thwaites_sep_x_upper),
             "cm_magnitude": np.abs(ev.cm_quarter_chord),
             "area": ev.area,
+            **extra,
         }
-        if "profile_drag" in self.objective_names:
-            from .viscous import screen_analysis
-
-            # the screening on the search's own circle grid (exact speeds at its samples)
-            values["profile_drag"] = screen_analysis(an, self.point.reynolds,
-                                                     points=self.points).cd
         obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
         weights = np.array([w for _, w in self.objectives])
-        g = self._constraints(ev, an, peak)
+        g = self._constraints(ev, st, peak)
         if self.epsilon is not None:  # minimise the first objective, bound the second
             f = obj[:, 0].copy()
             g = np.concatenate([g, (obj[:, 1] - self.epsilon)[:, None]], axis=1)
@@ -166,8 +163,49 @@ class Problem:
         feasible = ok & (np.all(g <= 0.0, axis=1) if g.shape[1] else True)
         return Outcome(f, obj, g, status, feasible)
 
-    def _constraints(self, ev, an, peak) -> np.ndarray:
-        cols = [fn(ev, an, peak) for _, _, fn in self._specs()]
+    def _evaluate_compiled(self, sec):
+        """The compiled kernel: every figure, the peak suction at every Cl of the point
+        (certified) and the exact station thickness in one pass per section."""
+        want = sum(bit for name, bit in (("severity", 1), ("thwaites", 2), ("stratford", 4))
+                   if name in self._proxies())
+        status, fig, peaks, st = _compiled.search_batch(
+            np.ascontiguousarray(sec.coefficients), np.ascontiguousarray(sec.te_angle),
+            np.array(self.point.cls, dtype=float), int(self.points),
+            1.0 - DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN, float(self.proxy_end),
+            self.stations, want, float(self.point.reynolds or 0.0), _compiled.PEAK_TOLERANCE)
+        ev = Evaluation.from_figures(status, fig)
+        return ev, np.max(peaks, axis=1), st
+
+    def _evaluate_reference(self, sec):
+        """The numpy reference pipeline, for objectives the compiled kernel does not have
+        (the boundary-layer screening's profile drag)."""
+        from .viscous import screen_analysis
+
+        an = analyse(sec, cl=self.point.cl, points=self.points, proxies=self._proxies(),
+                     reynolds=self.point.reynolds, proxy_end=self.proxy_end)
+        ev = an.evaluation
+        status = ev.status.copy()
+        peak = -ev.cp_min
+        for cl in self.point.cls[1:]:
+            other, stc = an.peak_suction_at(cl)
+            status = np.where(status == Status.OK, stc, status).astype(np.int8)
+            peak = np.fmax(peak, other)
+        xs = self.stations
+        if xs.size:
+            with np.errstate(all="ignore"):
+                zu = exact_points_at_x(sec, an.frame, an.split, -xs)
+                zl = exact_points_at_x(sec, an.frame, an.split, xs)
+            st = zu.imag - zl.imag
+        else:
+            st = np.zeros((len(sec), 0))
+        # the screening on the search's own circle grid (exact speeds at its samples)
+        drag = screen_analysis(an, self.point.reynolds, points=self.points).cd
+        from dataclasses import replace
+
+        return replace(ev, status=status), peak, st, {"profile_drag": drag}
+
+    def _constraints(self, ev, st, peak) -> np.ndarray:
+        cols = [fn(ev, st, peak) for _, _, fn in self._specs()]
         nb = ev.status.shape[0]
         return np.stack(cols, axis=1) if cols else np.zeros((nb, 0))
 

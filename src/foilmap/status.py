@@ -26,12 +26,16 @@ class Status(IntEnum):
     BRANCH_CUT = 3
     #: a surface is not single-valued in x (fold-over or self-intersection)
     FOLDED = 4
-    #: upper and lower surfaces cross (thickness ≤ 0 somewhere inside the chord)
+    #: upper and lower surfaces cross (the contour is not a simple curve, so the thickness is not
+    #: positive everywhere inside the chord)
     NEGATIVE_THICKNESS = 5
     #: the target Cl exceeds the section's maximum ideal lift 8π e^{Re A₀} / c
     ABOVE_MAX_LIFT = 6
     #: a figure came out NaN or infinite (coefficients far outside any sensible range)
     NON_FINITE = 7
+    #: the near-circle is not star-shaped about its centre, so the contour cannot be certified
+    #: simple (coefficients far outside the usual range)
+    NOT_STARLIKE = 8
 
     @property
     def label(self) -> str:
@@ -45,9 +49,11 @@ _TEXT = {
     Status.SINGULAR_POINT: "the near-circle does not enclose z1 = -1 with the required margin",
     Status.BRANCH_CUT: "the near-circle crosses the branch cut [-1, 1]",
     Status.FOLDED: "a surface folds over (not single-valued in x)",
-    Status.NEGATIVE_THICKNESS: "the surfaces cross (thickness not positive)",
+    Status.NEGATIVE_THICKNESS: "the surfaces cross, or come too close at a cusped edge to be "
+                               "certified apart (thickness not positive)",
     Status.ABOVE_MAX_LIFT: "the target Cl is above the section's maximum ideal lift",
     Status.NON_FINITE: "the evaluation gave non-finite figures",
+    Status.NOT_STARLIKE: "the near-circle is not star-shaped, so the contour is not certified simple",
 }
 
 

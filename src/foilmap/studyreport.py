@@ -135,6 +135,36 @@ def best_design(out: Path, run_id: str | None = None):
     return b, r, study
 
 
+#: a leading-edge radius below about 0.2 % of the chord is a needle nose that no real section
+#: should have: sensitive to incidence, hard to build and to keep attached (common practice)
+LE_RADIUS_FLOOR = 0.002
+
+
+def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
+    """One warning line per run whose best feasible design has a leading-edge radius below
+    ``floor`` (chords), naming the study key that prevents it."""
+    from .evaluate import evaluate
+
+    out = Path(out)
+    study = load_folder(out)
+    lines = []
+    for r in study.runs():
+        log_path, _ = run_paths(out, r.run_id)
+        if not log_path.exists():
+            continue
+        b = read_run(log_path).best()
+        if b is None:
+            continue
+        sec = Parametrisation.from_shape(r.shape).sections(b["x"][None, :])
+        radius = float(evaluate(sec, cl=r.point.cl, proxies=()).le_radius[0])
+        if radius < floor:
+            lines.append(f"warning: the best design of run {r.run_id} has a leading-edge radius "
+                         f"of {radius:.2g} c, below the practical floor of about {floor:g} c; "
+                         f"set constraints.min_le_radius in the study to keep the search away "
+                         f"from needle noses")
+    return lines
+
+
 def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
     """Convergence of every run, and the best sections with their Cp."""
     import matplotlib
