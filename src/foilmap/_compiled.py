@@ -24,7 +24,7 @@ import numpy as np
 from numba import njit
 
 __all__ = ["PEAK_TOLERANCE", "map_point", "peak_batch", "validity_batch", "search_batch",
-           "FIGURES"]
+           "critical_batch", "warm_up", "FIGURES"]
 
 #: relative tolerance of the certified peak speed: no point of the contour is faster than the
 #: reported maximum q by more than this factor; the reported value itself is a local maximum
@@ -1543,3 +1543,19 @@ def _proxies(phis, zs, dzs, q2s, z_le, scale, chord, u, alpha_c, proxy_end, want
     st_m = max(r_u[3], r_l[3]) if (math.isfinite(r_u[3]) and math.isfinite(r_l[3])) else (
         r_u[3] if math.isfinite(r_u[3]) else r_l[3])
     return sev, r_u[1], r_l[1], th_min, st_m, r_u[4], r_l[4]
+
+
+def warm_up() -> None:
+    """Compile (or load from numba's cache) every entry point once, on a one-section batch.
+
+    The driver calls this before it starts worker processes, so that they load the compiled
+    code from the cache instead of each compiling it (about half a minute the first time after
+    an install).
+    """
+    a = np.array([[-0.08 + 0.04j, 0.004 - 0.003j]])
+    tau = np.array([0.17])
+    validity_batch(a, tau, 64, 0.95, 0.02)
+    peak_batch(a, tau, np.array([0.05]), 64, PEAK_TOLERANCE)
+    critical_batch(a, 0.95)
+    search_batch(a, tau, np.array([0.5]), 64, 0.95, 0.02, 0.9, np.zeros(0), 0, 0.0,
+                 PEAK_TOLERANCE)

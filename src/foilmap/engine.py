@@ -324,6 +324,9 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     if not todo:
         return []
     _single_threaded_kernels()
+    from . import _compiled
+
+    _compiled.warm_up()  # workers then load the compiled kernel from the cache
     args = (study.text, study.source, study.base_dir, budget)
     if engine == "dask":
         from .dask_engine import DaskBackend
