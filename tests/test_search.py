@@ -248,3 +248,70 @@ def test_a_budget_set_on_the_study_reaches_the_workers(tmp_path):
     st = parse_study(STUDY).with_budget(60)
     summ = run_study(st, tmp_path / "b", workers=1)
     assert all(60 <= s["evaluations"] < 60 + 20 for s in summ)
+
+
+def test_a_study_without_constraints_runs(tmp_path):
+    # regression: a width-0 constraints table could not be created in the run log, so the
+    # simplest study failed in every run
+    text = """
+# test study (invented data)
+[study]
+name = "simple"
+seeds = [1]
+[[point]]
+name = "p"
+cl = 0.5
+[objectives]
+peak_suction = 1.0
+[search]
+max_evaluations = 120
+"""
+    path = one_run(tmp_path, "a", text=text)
+    log = read_run(path)
+    assert log.state_name == "complete" and log.constraint_names == []
+    assert log.evals["constraints"].shape == (log.evaluations, 0)
+    assert log.best() is not None
+
+
+INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 6000").replace(
+    "seeds = [3, 4]", "seeds = [3, 4, 5]")
+
+
+@pytest.mark.slow
+def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
+    # Ctrl-C (SIGINT to the process group) and SIGTERM, alternately, ten times: every time the
+    # driver exits 130 or 143 within seconds with one line, leaves no process behind and marks
+    # the unfinished runs interrupted; resume then finishes them bit-identically
+    study_file = tmp_path / "s.toml"
+    study_file.write_text(INTERRUPTED)
+    ref = tmp_path / "ref"
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out",
+                        str(ref), "--workers", "2"], capture_output=True, text=True, timeout=600)
+    assert r.returncode == 0, r.stderr
+    for k in range(10):
+        sig = signal.SIGINT if k % 2 == 0 else signal.SIGTERM
+        out = tmp_path / f"cut{k}"
+        proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(study_file),
+                                 "--out", str(out), "--workers", "2"], stdout=subprocess.DEVNULL,
+                                stderr=subprocess.PIPE, text=True, start_new_session=True)
+        wait_for_generations(out / "runs" / "p.s3.h5", 10 + 7 * k, proc)
+        t0 = time.time()
+        os.killpg(proc.pid, sig)
+        _, err = proc.communicate(timeout=60)
+        assert time.time() - t0 < 25, "the driver took too long to stop"
+        assert proc.returncode == (130 if sig == signal.SIGINT else 143), err
+        lines = [line for line in err.splitlines() if line.startswith("foilmap:")]
+        assert len(lines) == 1 and "resume" in lines[0] and "Traceback" not in err, err
+        left = subprocess.run(["ps", "-o", "pid=,stat=", "-g", str(proc.pid)],
+                              capture_output=True, text=True).stdout.split("\n")
+        alive = [row for row in left if row.strip() and not row.split()[1].startswith("Z")]
+        assert not alive, f"processes left behind: {alive}"  # exited children may await reaping
+        index = json.loads((out / "index.json").read_text())
+        states = {row["run"]: row["state"] for row in index["runs"]}
+        assert "interrupted" in states.values(), states
+        assert set(states.values()) <= {"interrupted", "complete", "pending"}, states
+        r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out),
+                            "--workers", "2"], capture_output=True, text=True, timeout=600)
+        assert r.returncode == 0, r.stderr
+        for run_id in ("p.s3", "p.s4", "p.s5"):
+            logs_equal(ref / "runs" / f"{run_id}.h5", out / "runs" / f"{run_id}.h5")

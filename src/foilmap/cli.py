@@ -715,7 +715,7 @@ def main(argv: list[str] | None = None) -> int:
         sys.stderr.close()
         return EXIT_OK
     except KeyboardInterrupt:
-        print("foilmap: interrupted", file=sys.stderr)
+        print("foilmap: interrupted; unfinished runs resume with foilmap resume", file=sys.stderr)
         return 130
     except SystemExit as exc:
         if isinstance(exc.code, int) and exc.code > 128:

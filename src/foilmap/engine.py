@@ -17,6 +17,7 @@ import json
 import multiprocessing as mp
 import os
 import signal
+import threading
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from pathlib import Path
@@ -237,6 +238,8 @@ def _init_worker(queue) -> None:
 #: what the index keeps of a finished run (so that status need not open complete logs)
 _INDEXED = ("state", "generations", "evaluations", "best", "best_objectives", "resumes",
             "elapsed_s", "hypervolume")
+#: seconds an interrupted study gives its workers to commit before they are killed
+ABORT_GRACE = 20.0
 #: attempts of a run inside one task before it is recorded as failed (each resumes from the
 #: run's own checkpoint)
 RUN_ATTEMPTS = 3
@@ -365,12 +368,25 @@ class _LocalBackend:
                 return
 
     def abort(self) -> None:
+        """Stop every worker: SIGTERM makes a worker commit its run at the end of the current
+        generation and leave; one that has not left after :data:`ABORT_GRACE` seconds is
+        killed (its run then resumes from its last commit)."""
+        procs = list((getattr(self.pool, "_processes", None) or {}).values())
+        for p in procs:
+            p.terminate()
+        deadline = time.monotonic() + ABORT_GRACE
+        for p in procs:
+            p.join(timeout=max(0.0, deadline - time.monotonic()))
+        for p in procs:
+            if p.is_alive():
+                p.kill()
+                p.join(timeout=5.0)
         self.pool.shutdown(wait=False, cancel_futures=True)
-        for p in list(getattr(self.pool, "_processes", {}).values()):
-            p.terminate()  # SIGTERM: workers close their logs through SystemExit
+        self._aborted = True
 
     def close(self) -> None:
-        self.pool.shutdown(wait=True, cancel_futures=True)
+        if not getattr(self, "_aborted", False):
+            self.pool.shutdown(wait=True, cancel_futures=True)
 
 
 def _drive(backend, study: Study, out: Path, todo, args, states, progress) -> list[dict]:
@@ -383,7 +399,8 @@ def _drive(backend, study: Study, out: Path, todo, args, states, progress) -> li
         pending = set(futures)
         while pending:
             done, pending = backend.wait(pending, 0.5)
-            _drain(backend.messages(), progress, states)
+            if _drain(backend.messages(), progress, states):
+                write_index(study, out, states)  # live status sees the run as running
             for fut in done:
                 r = futures.pop(fut)
                 try:
@@ -399,11 +416,21 @@ def _drive(backend, study: Study, out: Path, todo, args, states, progress) -> li
                 write_index(study, out, states)
         _drain(backend.messages(), progress, states)
     except BaseException:
-        for st in states.values():
-            if st.get("state") in ("queued", "running"):
-                st["state"] = "interrupted"
-        backend.abort()
-        write_index(study, out, states)
+        # an interrupt (Ctrl-C, SIGTERM) or an engine failure: a second signal must not break
+        # the shutdown, which commits every run and leaves no process behind
+        old = {}
+        if threading.current_thread() is threading.main_thread():
+            old = {sig: signal.signal(sig, signal.SIG_IGN)
+                   for sig in (signal.SIGINT, signal.SIGTERM)}
+        try:
+            for st in states.values():
+                if st.get("state") in ("queued", "running"):
+                    st["state"] = "interrupted"
+            backend.abort()
+            write_index(study, out, states)
+        finally:
+            for sig, handler in old.items():
+                signal.signal(sig, handler)
         raise
     finally:
         backend.close()
@@ -413,10 +440,14 @@ def _drive(backend, study: Study, out: Path, todo, args, states, progress) -> li
     return summaries
 
 
-def _drain(messages, progress, states) -> None:
+def _drain(messages, progress, states) -> bool:
+    """Take the workers' progress messages; True when a run has just started running."""
+    started = False
     for msg in messages:
         st = states.setdefault(msg["run"], {})
-        if st.get("state") not in ("complete", "failed"):  # a late message from a run just done
+        if st.get("state") not in ("complete", "failed", "running"):  # not a late message
             st["state"] = "running"
+            started = True
         if progress is not None:
             progress.update(msg)
+    return started

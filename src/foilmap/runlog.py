@@ -57,9 +57,13 @@ GEN_FIELDS = ("evaluations", "restart", "popsize", "sigma", "mean", "best_f", "b
 
 
 def _create(grp, name, shape_tail, dtype, chunk_rows):
+    # HDF5 chunks cannot have a zero extent: a width-0 table (a study without constraints)
+    # gets chunks of width 1 and an unlimited width that stays 0
+    chunk_tail = tuple(max(n, 1) for n in shape_tail)
+    max_tail = tuple(None if n == 0 else n for n in shape_tail)
     return grp.create_dataset(
-        name, shape=(0,) + shape_tail, maxshape=(None,) + shape_tail, dtype=dtype,
-        chunks=(max(chunk_rows, 1),) + shape_tail, compression="gzip", shuffle=True)
+        name, shape=(0,) + shape_tail, maxshape=(None,) + max_tail, dtype=dtype,
+        chunks=(max(chunk_rows, 1),) + chunk_tail, compression="gzip", shuffle=True)
 
 
 def _append(ds, rows):

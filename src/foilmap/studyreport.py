@@ -150,9 +150,10 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
     lines = []
     for r in study.runs():
         log_path, _ = run_paths(out, r.run_id)
-        if not log_path.exists():
-            continue
-        b = read_run(log_path).best()
+        try:
+            b = read_run(log_path).best()
+        except (OSError, KeyError, ValueError):
+            continue  # no log, or one that a failed run left unreadable: reported elsewhere
         if b is None:
             continue
         sec = Parametrisation.from_shape(r.shape).sections(b["x"][None, :])
