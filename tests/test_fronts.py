@@ -292,3 +292,45 @@ def test_shipped_front_study_is_a_two_variant_comparison():
     study = parse_study(path.read_text(), str(path))
     assert study.search["method"] == "comocma" and len(study.objectives) == 2
     assert {v for v, _ in study.variants} == {"n4", "n8"}
+
+
+def test_fronts_of_two_folders_of_one_study_stay_apart(tmp_path):
+    # regression: same-named runs of two folders were merged (one run counted twice)
+    import shutil
+
+    a, study = run_folder(tmp_path, "a", budget=300)
+    b = tmp_path / "b"
+    shutil.copytree(a, b)
+    r = cli("fronts", a, b, "--json", "--reference", "5,5")
+    assert r.returncode == 0, r.stderr
+    res = json.loads(r.stdout)
+    runs = {(row["folder"], row["run"]) for row in res["runs"]}
+    assert len(res["runs"]) == 4 and len(runs) == 4
+    assert {row["run"] for row in res["runs"]} == {"a/p.s1", "a/p.s2", "b/p.s1", "b/p.s2"}
+    assert [g["count"] for g in res["groups"]] == [2, 2]
+    # and two run logs of the same name from two folders
+    r = cli("fronts", a / "runs" / "p.s1.h5", b / "runs" / "p.s1.h5", "--json", "--reference",
+            "5,5")
+    assert r.returncode == 0, r.stderr
+    res = json.loads(r.stdout)
+    assert [row["run"] for row in res["runs"]] == ["a/p.s1", "b/p.s1"]
+    hv = [row["hypervolume"] for row in res["runs"]]
+    assert hv[0] == pytest.approx(hv[1])  # the same log, counted once in each folder
+    # one folder alone keeps plain run ids
+    res = json.loads(cli("fronts", a, "--json", "--reference", "5,5").stdout)
+    assert {row["run"] for row in res["runs"]} == {"p.s1", "p.s2"}
+
+
+def test_a_front_study_points_best_to_pick_and_plots_its_hypervolume(tmp_path):
+    # regression: best and export --best said "no feasible design yet" and plot-run drew an
+    # empty convergence figure for a multi-objective study
+    a, _ = run_folder(tmp_path, "a", budget=300)
+    for args in (["best", a, "-o", tmp_path / "b.toml"], ["export", a, "--best", "-o",
+                                                           tmp_path / "e"]):
+        r = cli(*args)
+        assert r.returncode == 2, r.stderr
+        assert "pick" in r.stderr and "--knee" in r.stderr and len(r.stderr.splitlines()) == 1
+        assert not (tmp_path / "b.toml").exists() and not (tmp_path / "e").exists()
+    r = cli("plot-run", a, "-o", tmp_path / "hv.png")
+    assert r.returncode == 0, r.stderr
+    assert (tmp_path / "hv.png").stat().st_size > 20_000

@@ -315,3 +315,18 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
         assert r.returncode == 0, r.stderr
         for run_id in ("p.s3", "p.s4", "p.s5"):
             logs_equal(ref / "runs" / f"{run_id}.h5", out / "runs" / f"{run_id}.h5")
+
+
+def test_a_study_with_no_feasible_design_says_so(tmp_path):
+    # an impossible thickness: every run ends without a feasible design; the run says so and
+    # plot-run refuses in one line rather than drawing an empty figure (invented study)
+    from conftest import cli, small_study
+
+    study = tmp_path / "s.toml"
+    study.write_text(small_study("none", [1], 120, constraints="min_thickness = 0.6"))
+    r = cli("run", study, "--out", tmp_path / "out", "--workers", "1")
+    assert r.returncode == 0, r.stderr
+    assert "no run of study none found a feasible design" in r.stdout
+    r = cli("plot-run", tmp_path / "out", "-o", tmp_path / "c.png")
+    assert r.returncode == 2 and "no run of study 'none' has a feasible design" in r.stderr
+    assert not (tmp_path / "c.png").exists()

@@ -196,10 +196,14 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) 
           f"{len(failed)} failed; logs in {out / 'runs'}")
     for s in failed:
         print(f"  run {s['run']} failed: {s.get('error', 'unknown error')}")
-    from .studyreport import sharp_nose_warnings
+    from .studyreport import is_multi_objective, sharp_nose_warnings
 
     for line in sharp_nose_warnings(out):
         print(line)
+    done = [s for s in summaries if s.get("state") == "complete"]
+    if done and not is_multi_objective(study) and all(s.get("best") is None for s in done):
+        print(f"warning: no run of study {study.name} found a feasible design; loosen the "
+              f"constraints or widen the search (foilmap status {out} shows each run)")
     return EXIT_OK if not failed else 1
 
 
@@ -521,7 +525,10 @@ def cmd_export(args) -> int:
                           reynolds=args.re, provenance={"file": str(sel), **rec.provenance})]
     else:
         raise InputError(f"export: {str(sel)!r} is neither a section file nor a study folder")
+    from .sectionfile import umask_mode
+
     tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
+    os.chmod(tmp, umask_mode(directory=True))  # the bundle is a hand-off: readable as usual
     try:
         rows = export_designs(designs, tmp, points=args.points, spacing=args.spacing,
                               te_thickness=args.te_thickness, mesh=args.mesh,

@@ -296,11 +296,26 @@ def _todo(study: Study, out: Path, states: dict) -> list[RunSpec]:
     return todo
 
 
-def _single_threaded_kernels() -> None:
-    """Kernels single-threaded in workers: parallelism is across runs, and the bits do not
-    depend on how many BLAS threads a machine offers (inherited by spawned workers)."""
-    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
-        os.environ[var] = "1"
+_BLAS_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+class _single_threaded_kernels:
+    """Kernels single-threaded in the workers started inside this block: parallelism is across
+    runs, and the bits do not depend on how many BLAS threads a machine offers.  Spawned workers
+    inherit the environment at their start; the caller's environment is restored after."""
+
+    def __enter__(self):
+        self._saved = {v: os.environ.get(v) for v in _BLAS_VARS}
+        for v in _BLAS_VARS:
+            os.environ[v] = "1"
+
+    def __exit__(self, *exc):
+        for v, old in self._saved.items():
+            if old is None:
+                os.environ.pop(v, None)
+            else:
+                os.environ[v] = old
+        return False
 
 
 def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
@@ -326,19 +341,19 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
         progress.done = len(runs) - len(todo)
     if not todo:
         return []
-    _single_threaded_kernels()
     from . import _compiled
 
     _compiled.warm_up()  # workers then load the compiled kernel from the cache
     args = (study.text, study.source, study.base_dir, budget)
-    if engine == "dask":
-        from .dask_engine import DaskBackend
-
-        backend = DaskBackend(workers, scheduler, out)
-    elif engine == "local":
-        backend = _LocalBackend(workers)
-    else:
+    if engine not in ("local", "dask"):
         raise InputError(f"engine {engine!r} is not one of: local, dask")
+    with _single_threaded_kernels():  # a LocalCluster starts its workers here
+        if engine == "dask":
+            from .dask_engine import DaskBackend
+
+            backend = DaskBackend(workers, scheduler, out)
+        else:
+            backend = _LocalBackend(workers)
     return _drive(backend, study, out, todo, args, states, progress)
 
 
@@ -352,7 +367,8 @@ class _LocalBackend:
                                         initializer=_init_worker, initargs=(self.queue,))
 
     def submit(self, args, run_id: str, out: Path):
-        return self.pool.submit(_worker, *args, run_id, str(out))
+        with _single_threaded_kernels():  # the pool starts its workers on submission
+            return self.pool.submit(_worker, *args, run_id, str(out))
 
     def wait(self, pending, timeout: float):
         return wait(pending, timeout=timeout, return_when=FIRST_COMPLETED)

@@ -36,7 +36,7 @@ class RunFront:
     """The front of one run (or one merged ε sweep)."""
 
     group: str
-    run: str  # run id, or the sweep's front key
+    run: str  # run id or the sweep's front key (FOLDER/ID when several folders are compared)
     study: Study
     specs: list[RunSpec]
     objective_names: list[str]
@@ -46,6 +46,7 @@ class RunFront:
     evaluations: np.ndarray  # history: evaluations after each generation
     hv_history: np.ndarray  # history: logged hypervolume (NaN for merged sweeps)
     reference_point: tuple | None
+    folder: str = ""  # the study folder the run belongs to
 
 
 def _group_name(study: Study, spec: RunSpec) -> str:
@@ -89,9 +90,26 @@ def collect_fronts(paths: list[str]) -> list[RunFront]:
             seen.add(ident)
             f = _front_of(folder, study, key, specs)
             if f is not None:
+                f.folder = str(folder)
                 fronts.append(f)
     if not fronts:
         raise InputError("no run logs found in " + ", ".join(repr(p) for p in paths))
+    return _label_by_folder(fronts)
+
+
+def _label_by_folder(fronts: list[RunFront]) -> list[RunFront]:
+    """Keep runs of different folders apart: with more than one folder, every run and group is
+    labelled by its folder (its name, or its path where two folders share a name), so that the
+    same study run twice is compared as two groups rather than merged."""
+    folders = sorted({str(Path(f.folder).resolve()) for f in fronts})
+    if len(folders) < 2:
+        return fronts
+    names = [Path(p).name for p in folders]
+    label = {p: (n if names.count(n) == 1 else p) for p, n in zip(folders, names)}
+    for f in fronts:
+        tag = label[str(Path(f.folder).resolve())]
+        f.group = f"{tag}/{f.group}"
+        f.run = f"{tag}/{f.run}"
     return fronts
 
 
@@ -170,7 +188,8 @@ def compare_fronts(fronts: list[RunFront], reference=None) -> dict:
             suggest = ",".join(f"{v:.3g}" for v in np.where(hi > 0, 1.1 * hi, 0.9 * hi + 0.1))
             raise InputError(f"run {f.run}: {exc} (for example --reference {suggest})") from None
         runs.append({
-            "run": f.run, "group": f.group, "reference_point": ref.tolist(), "hypervolume": hv,
+            "run": f.run, "folder": f.folder, "group": f.group, "reference_point": ref.tolist(),
+            "hypervolume": hv,
             "front": f.objectives.tolist(),
             "designs": [{"id": i, "objectives": o.tolist()} for i, o in zip(f.ids, f.objectives)],
         })
@@ -258,16 +277,16 @@ def plot_fronts(fronts: list[RunFront], res: dict, path) -> None:
     """Fronts overlaid by group, median attainment surfaces, hypervolume against evaluations."""
     import matplotlib
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure
 
     from .report import CAUTION
 
     names = res["objectives"]
     groups = [g["group"] for g in res["groups"]]
-    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    colours = matplotlib.rcParams["axes.prop_cycle"].by_key()["color"]
     col = {g: colours[i % len(colours)] for i, g in enumerate(groups)}
-    fig, axes = plt.subplots(1, 3, figsize=(15, 4.8))
+    fig = Figure(figsize=(15, 4.8))
+    axes = fig.subplots(1, 3)
     a0, a1, a2 = axes
     for f in fronts:
         if f.objectives.shape[0]:
@@ -301,7 +320,6 @@ def plot_fronts(fronts: list[RunFront], res: dict, path) -> None:
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
     fig.tight_layout(rect=(0, 0.04, 1, 1))
     fig.savefig(path, dpi=110)
-    plt.close(fig)
 
 
 def pick_design(folder: Path, *, nearest: dict | None = None, knee: bool = False,

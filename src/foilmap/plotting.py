@@ -45,17 +45,15 @@ def streamfunction_grid(analysis: Analysis, i: int = 0, radial: int = 90, angula
 def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "section",
                  i: int = 0, points: int = 241) -> None:
     """Write a PNG: Cp along the chord (axis inverted) above the section in its streamlines."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure
 
     ev = analysis.evaluation
     zc, upper, q = surface_distribution(analysis, points, "cosine")
     zc, upper, q = zc[i], upper[i], q[i]
     cp = 1.0 - q * q
-    fig, (ax_cp, ax_sec) = plt.subplots(
-        2, 1, figsize=(8.0, 8.2), gridspec_kw={"height_ratios": [1.05, 1.0]}, sharex=True
+    fig = Figure(figsize=(8.0, 8.2))
+    ax_cp, ax_sec = fig.subplots(
+        2, 1, gridspec_kw={"height_ratios": [1.05, 1.0]}, sharex=True
     )
     ax_cp.plot(zc.real[upper], cp[upper], color="#b03a2e", lw=1.8, label="upper surface")
     ax_cp.plot(zc.real[~upper], cp[~upper], color="#1f618d", lw=1.8, label="lower surface")
@@ -88,21 +86,18 @@ def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "secti
     fig.text(0.5, 0.01, CAUTION, ha="center", va="bottom", fontsize=6.5, wrap=True, color="0.3")
     fig.tight_layout(rect=(0, 0.04, 1, 1))
     fig.savefig(path, dpi=130)
-    plt.close(fig)
 
 
 def plot_fit(coords, fit, path) -> None:
     """Given and fitted contours overlaid, and the deviation along the chord."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    from matplotlib.figure import Figure
 
     from .fitting import dense_reference
 
     ref = dense_reference(coords.xy, coords.le_index)
     fx, fy = fit.fitted_xy[:, 0], fit.fitted_xy[:, 1]
-    fig, (ax, axd) = plt.subplots(2, 1, figsize=(8.0, 6.5), sharex=True,
+    fig = Figure(figsize=(8.0, 6.5))
+    ax, axd = fig.subplots(2, 1, sharex=True,
                                   gridspec_kw={"height_ratios": [1.2, 1.0]})
     ax.plot(coords.xy[:, 0], coords.xy[:, 1], "o", ms=2.5, color="#1f618d", label="given points")
     ax.plot(fx, fy, "-", lw=1.0, color="#b03a2e", label=f"map, N = {len(fit.coefficients)}")
@@ -127,4 +122,3 @@ def plot_fit(coords, fit, path) -> None:
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=6, color="0.3", wrap=True)
     fig.tight_layout(rect=(0, 0.04, 1, 1))
     fig.savefig(path, dpi=120)
-    plt.close(fig)

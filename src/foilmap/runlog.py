@@ -340,6 +340,12 @@ _LAST_FSYNC: dict[str, float] = {}
 FSYNC_INTERVAL = 10.0
 
 
+def _file_mode() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def save_checkpoint(path: str | Path, state) -> None:
     """Pickle ``state`` to ``path`` atomically (temporary file, rename; fsync every 10 s)."""
     path = Path(path)
@@ -347,6 +353,7 @@ def save_checkpoint(path: str | Path, state) -> None:
     try:
         with os.fdopen(fd, "wb") as fh:
             pickle.dump(state, fh, protocol=pickle.HIGHEST_PROTOCOL)
+            os.chmod(tmp, _file_mode())
             now = time.monotonic()
             if now - _LAST_FSYNC.get(str(path), -1e9) >= FSYNC_INTERVAL:
                 fh.flush()

@@ -30,22 +30,24 @@ def private_randn(seed: int, restart: int):
     return np.random.RandomState(state).randn
 
 
-def _quiet_cma():
-    """Switch off cma's analysis-only records of constrained runs (module settings of cma):
-    the archives of constrained solutions and the augmented Lagrangian's per-iteration logs.
-    Neither takes part in the search; together they cost about a millisecond a generation and
-    grow the pickled checkpoint."""
-    import cma.evolution_strategy as ces
+def _tear_up_constraints(es) -> None:
+    """Set up cma's constraint handling on a new strategy before its first ``tell`` (what cma
+    does itself on that first call, less the analysis-only archives of constrained solutions
+    and the augmented Lagrangian's logs: neither takes part in the search, together they cost
+    about a millisecond a generation, and the logs are files in the working directory)."""
+    from cma import optimization_tools
 
-    ces.tell_constraints_archives = False
-    ces.tell_augmented_lagrangian_logging = 0
+    from ._cma_quiet import QuietAugmentedLagrangian
+
+    es.augmented_lagrangian = QuietAugmentedLagrangian(es.N)
+    es.best_feasible = optimization_tools.BestFeasibleSolution()
+    es._last_feasible_f = None
+    es._first_feasible_f = None
 
 
 def _new_es(problem: Problem, search: dict, seed: int, restart: int, popsize: int,
             remaining: int):
     import cma
-
-    _quiet_cma()
 
     p = problem.param
     lo, hi = p.bounds()
@@ -64,7 +66,10 @@ def _new_es(problem: Problem, search: dict, seed: int, restart: int, popsize: in
     }
     if popsize:
         opts["popsize"] = int(popsize)
-    return cma.CMAEvolutionStrategy(list(p.x0()), 1.0, opts)
+    es = cma.CMAEvolutionStrategy(list(p.x0()), 1.0, opts)
+    if problem.constraint_names:
+        _tear_up_constraints(es)
+    return es
 
 
 @dataclass

@@ -166,14 +166,27 @@ def format_section(
     return "\n".join(lines) + "\n"
 
 
+def umask_mode(directory: bool = False) -> int:
+    """The permissions a new file (0o666) or folder (0o777) gets under the process umask.
+
+    Temporary files and folders are created private (0o600, 0o700); whatever is renamed into
+    place as a result gets these instead, so that colleagues can read a hand-off.
+    """
+    mask = os.umask(0)
+    os.umask(mask)
+    return (0o777 if directory else 0o666) & ~mask
+
+
 def write_text_atomic(path: str | os.PathLike, text: str) -> None:
-    """Write a text file whole or not at all (temporary file, then rename)."""
+    """Write a text file whole or not at all (temporary file, then rename), with the
+    permissions of an ordinary new file."""
     p = Path(path)
     d = p.parent if str(p.parent) else Path(".")
     fd, tmp = tempfile.mkstemp(dir=d, prefix=f".{p.name}.", suffix=".tmp")
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="") as fh:
             fh.write(text)
+        os.chmod(tmp, umask_mode())
         os.replace(tmp, p)
     except BaseException:
         try:

@@ -112,6 +112,10 @@ def best_design(out: Path, run_id: str | None = None):
     out = Path(out)
     study = load_folder(out)
     runs = study.runs()
+    if is_multi_objective(study):
+        raise InputError(f"study {study.name!r} searches Pareto fronts, so it has no single best "
+                         f"design: choose one with foilmap pick {out} --knee (or --nearest, "
+                         f"--index)")
     if run_id is not None:
         runs = [r for r in runs if r.run_id == run_id]
         if not runs:
@@ -166,21 +170,85 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
     return lines
 
 
-def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
-    """Convergence of every run, and the best sections with their Cp."""
-    import matplotlib
+def _has_feasible(out: Path, run) -> bool:
+    try:
+        return read_run(run_paths(out, run.run_id)[0]).best() is not None
+    except (OSError, KeyError, ValueError):
+        return False
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+
+def is_multi_objective(study: Study) -> bool:
+    """Whether the study's runs search Pareto fronts (COMO-CMA-ES or ε-constraint sweeps)."""
+    return any(r.search["method"] != "cmaes" for r in study.runs())
+
+
+def _plot_front_runs(out: Path, study: Study, path: Path) -> None:
+    """Hypervolume history and final front of every run of a multi-objective study."""
+    from matplotlib.figure import Figure
+
+    from .report import CAUTION
+
+    fig = Figure(figsize=(11, 5.2))
+    ax_h, ax_f = fig.subplots(1, 2)
+    shown = 0
+    names = None
+    for r in study.runs():
+        log_path, _ = run_paths(out, r.run_id)
+        if not log_path.exists():
+            continue
+        log = read_run(log_path)
+        if not log.generations:
+            continue
+        names = log.objective_names
+        colour = f"C{shown % 10}"
+        hv = log.gen.get("hypervolume")
+        if hv is not None and np.isfinite(hv).any():
+            ax_h.plot(log.gen["evaluations"], hv, lw=1.2, color=colour, label=r.run_id)
+        front = log.evals["objectives"][log.front()]
+        if front.shape[0] and front.shape[1] >= 2:
+            order = np.argsort(front[:, 0])
+            ax_f.plot(front[order, 0], front[order, 1], ".-", ms=4, lw=0.8, color=colour,
+                      label=r.run_id)
+        shown += 1
+    if not shown:
+        raise InputError(f"study folder {str(out)!r} has no run with a logged generation yet: "
+                         "nothing to plot")
+    ax_h.set_xlabel("evaluations")
+    ax_h.set_ylabel("hypervolume of the feasible archive")
+    ax_h.set_title(f"study {study.name}: hypervolume of {shown} runs", fontsize=10)
+    ax_h.grid(True, color="0.9")
+    if names:
+        ax_f.set_xlabel(names[0])
+        ax_f.set_ylabel(names[1])
+    ax_f.set_title("final fronts (minimised)", fontsize=10)
+    ax_f.grid(True, color="0.9")
+    if shown <= 12:
+        ax_f.legend(fontsize=7, frameon=False, ncol=2)
+    fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
+    fig.tight_layout(rect=(0, 0.04, 1, 1))
+    fig.savefig(path, dpi=120)
+
+
+def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
+    """Convergence of every run, and the best sections with their Cp (for a multi-objective
+    study, the hypervolume history and the final fronts)."""
+    from matplotlib.figure import Figure
 
     from .evaluate import analyse, surface_distribution
     from .report import CAUTION
 
     out = Path(out)
     study: Study = load_folder(out)
-    fig = plt.figure(figsize=(11, 8.5))
+    if is_multi_objective(study):
+        _plot_front_runs(out, study, path)
+        return
+    if not any(_has_feasible(out, r) for r in study.runs()):
+        raise InputError(f"no run of study {study.name!r} has a feasible design yet: nothing to "
+                         f"plot (foilmap status {out} shows each run)")
+    fig = Figure(figsize=(11, 8.5))
     ax_c = fig.add_subplot(2, 1, 1)
     finals = []
+    colour = {r.run_id: f"C{i % 10}" for i, r in enumerate(study.runs())}  # one per run
     for r in study.runs():
         log_path, _ = run_paths(out, r.run_id)
         if not log_path.exists():
@@ -191,7 +259,7 @@ def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
         e, b = log.gen["evaluations"], log.gen["best_f"]
         ok = np.isfinite(b)
         if ok.any():
-            ax_c.plot(e[ok], b[ok], lw=1.2, label=r.run_id)
+            ax_c.plot(e[ok], b[ok], lw=1.2, color=colour[r.run_id], label=r.run_id)
             finals.append((float(b[ok][-1]), r.run_id))
     lows = [f for f, _ in finals]
     firsts = [ln.get_ydata()[0] for ln in ax_c.get_lines()]
@@ -210,13 +278,15 @@ def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
         sec = Parametrisation.from_shape(r.shape).sections(b["x"][None, :])
         an = analyse(sec, cl=r.point.cl, proxies=())
         zc, up, q = surface_distribution(an, 201)
-        line, = ax_s.plot(zc[0].real, zc[0].imag, lw=1.2, label=f"{rid}: {f:.4g}")
-        ax_p.plot(zc[0].real, 1 - q[0] ** 2, lw=1.0, color=line.get_color())
+        ax_s.plot(zc[0].real, zc[0].imag, lw=1.2, color=colour[rid], label=f"{rid}: {f:.4g}")
+        ax_p.plot(zc[0].real, 1 - q[0] ** 2, lw=1.0, color=colour[rid])
     ax_s.set_aspect("equal")
     ax_s.set_xlabel("x / chord")
     ax_s.set_title("best sections", fontsize=10)
-    ax_s.legend(fontsize=7, frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.5),
-                ncol=2)
+    # the legend in the free space under the (flat, equal-aspect) section axes, in figure
+    # coordinates, so that it never covers the axis label
+    fig.legend(*ax_s.get_legend_handles_labels(), fontsize=7, frameon=False, ncol=2,
+               loc="lower left", bbox_to_anchor=(0.06, 0.06))
     ax_p.invert_yaxis()
     ax_p.set_xlabel("x / chord")
     ax_p.set_ylabel("Cp at the design Cl")
@@ -224,4 +294,3 @@ def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
     fig.tight_layout(rect=(0, 0.03, 1, 1))
     fig.savefig(path, dpi=120)
-    plt.close(fig)
