@@ -330,3 +330,23 @@ def test_a_study_with_no_feasible_design_says_so(tmp_path):
     r = cli("plot-run", tmp_path / "out", "-o", tmp_path / "c.png")
     assert r.returncode == 2 and "no run of study 'none' has a feasible design" in r.stderr
     assert not (tmp_path / "c.png").exists()
+
+
+def test_workers_get_the_validated_study_not_its_text(tmp_path):
+    # the study's start file is read (and fitted) once, when the study is loaded: the workers
+    # receive the study object, so removing the file afterwards changes nothing (before, every
+    # worker parsed the text again and fitted the file again)
+    from conftest import SECTION_TEXT, small_study
+
+    from foilmap.engine import run_study
+
+    (tmp_path / "start.toml").write_text(SECTION_TEXT)
+    text = small_study("fromfile", [1, 2], 150).replace(
+        "coefficients = 4", 'coefficients = 4\nstart = "start.toml"')
+    (tmp_path / "s.toml").write_text(text)
+    from foilmap import load_study
+
+    study = load_study(tmp_path / "s.toml")
+    (tmp_path / "start.toml").unlink()
+    summaries = run_study(study, tmp_path / "out", workers=2)
+    assert [s["state"] for s in summaries] == ["complete", "complete"]

@@ -10,6 +10,10 @@ Status
     Status codes of an evaluation (invalid shapes are a status, never an exception).
 load_section, format_section
     Section files.
+load_study, run_study, open_results
+    Studies from Python (notebooks): a validated study, its runs into a folder, and the folder's
+    results (:class:`~foilmap.results.StudyResults`: ``.runs``, ``.best()``, ``.front()``,
+    ``.history(run_id)``); see docs/python-api.md.
 offset_circle_coefficients
     The classic Joukowski / Kármán–Trefftz offset circle as a shape series.
 
@@ -24,8 +28,10 @@ __version__ = "0.1.0"
 from .conformal import SectionSet, offset_circle_coefficients
 from .errors import InputError
 from .evaluate import Analysis, Evaluation, analyse, evaluate, surface_distribution
+from .results import RunResult, RunState, StudyResults, open_results, run_study
 from .sectionfile import SectionRecord, format_section, load_section
 from .status import Status
+from .study import Study, load_study
 
 __all__ = [
     "__version__",
@@ -41,4 +47,11 @@ __all__ = [
     "SectionRecord",
     "load_section",
     "format_section",
+    "Study",
+    "load_study",
+    "run_study",
+    "open_results",
+    "StudyResults",
+    "RunResult",
+    "RunState",
 ]

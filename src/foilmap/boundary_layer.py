@@ -1,4 +1,4 @@
-"""Adverse-pressure-gradient proxies along a surface (DESIGN.md §3).
+"""Adverse-pressure-gradient proxies along a surface (docs/method.md, "Recovery proxies").
 
 All functions take surface distributions ordered from the stagnation point, shape (B, M):
 ``s`` the arc length from the stagnation point in chords, ``u`` the speed ratio q/V∞, ``du_ds``

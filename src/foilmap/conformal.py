@@ -1,4 +1,4 @@
-"""The two-stage conformal map from the unit circle to the section (DESIGN.md §1).
+"""The two-stage conformal map from the unit circle to the section (docs/method.md, "The map").
 
 Stage 1, the shape series (near-circle plane z₁)::
 
@@ -35,7 +35,7 @@ __all__ = [
 ]
 
 #: δ₁: stage-1 critical points must lie inside |ζ| < 1 − δ₁.  It also bounds how sharp a local
-#: feature of the near-circle can be (DESIGN.md §1).
+#: feature of the near-circle can be (docs/method.md, "Validity").
 DEFAULT_CRITICAL_MARGIN = 0.05
 #: δ₂: smallest distance from z₁ = −1 to the near-circle.  For the Joukowski offset circle the
 #: distance is 2ε, and t/c ≈ 1.3 ε, so 0.02 admits sections down to about 1.3 % thickness.

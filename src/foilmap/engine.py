@@ -245,15 +245,14 @@ ABORT_GRACE = 20.0
 RUN_ATTEMPTS = 3
 
 
-def _worker(text: str, source: str, base_dir: str, budget, run_id: str, out: str) -> dict:
+def _worker(study: Study, run_id: str, out: str) -> dict:
     """Run one run where the task lands (a pool process or a Dask worker); returns a summary.
 
-    A run that raises is retried (from its checkpoint) up to :data:`RUN_ATTEMPTS` times, then
-    recorded as failed with its error; the study goes on with the rest.
+    The worker gets the validated study object (its budget applied, start files already read
+    and fitted), never its text to parse again.  A run that raises is retried (from its
+    checkpoint) up to :data:`RUN_ATTEMPTS` times, then recorded as failed with its error; the
+    study goes on with the rest.
     """
-    study = parse_study(text, source, base_dir)
-    if budget is not None:
-        study = study.with_budget(budget)
     run = next(r for r in study.runs() if r.run_id == run_id)
     q = _QUEUE
     report = (lambda m: q.put(m)) if q is not None else None
@@ -327,10 +326,8 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     The same study and seeds give the same logs on every engine.
     """
     out = Path(out)
-    # a budget set on the study object travels to the workers like --budget (they re-read the
-    # study's text, which keeps its own)
+    # a budget set on the study object is recorded like --budget, so that resume keeps it
     study = prepare_folder(study, out, budget if budget is not None else study.budget)
-    budget = _read_options(out).get("budget")
     runs = study.runs()
     workers = max(1, min(workers or os.cpu_count() or 1, len(runs)))
     states: dict[str, dict] = {}
@@ -344,7 +341,7 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     from . import _compiled
 
     _compiled.warm_up()  # workers then load the compiled kernel from the cache
-    args = (study.text, study.source, study.base_dir, budget)
+    args = (study,)
     if engine not in ("local", "dask"):
         raise InputError(f"engine {engine!r} is not one of: local, dask")
     with _single_threaded_kernels():  # a LocalCluster starts its workers here

@@ -214,7 +214,7 @@ def analyse(
     proxy_end : float
         Chord station where the proxies stop (see :data:`DEFAULT_PROXY_END`).
     critical_margin, singular_margin : float
-        δ₁ and δ₂ of the validity checks (DESIGN.md §1).
+        δ₁ and δ₂ of the validity checks (docs/method.md, "Validity").
     """
     if (cl is None) == (alpha is None):
         raise ValueError("give exactly one of cl and alpha")

@@ -1,4 +1,4 @@
-"""Exact ideal flow past the mapped sections (DESIGN.md §2).
+"""Exact ideal flow past the mapped sections (docs/method.md, "Flow").
 
 With V∞ = 1 at angle α_z in the map plane, the circle-plane complex velocity is::
 

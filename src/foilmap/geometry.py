@@ -1,4 +1,4 @@
-"""Section geometry in the chord-normalised frame (DESIGN.md §1, §3, §6).
+"""Section geometry in the chord-normalised frame (docs/method.md, "Geometry").
 
 The leading edge is the contour point farthest from the trailing edge z = k; the frame is
 translated, rotated and scaled so that LE = (0, 0) and TE = (1, 0):

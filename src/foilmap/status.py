@@ -18,7 +18,7 @@ class Status(IntEnum):
     """Outcome of evaluating one candidate section."""
 
     OK = 0
-    #: a critical point of the shape series lies at or outside |ζ| = 1 − δ₁ (DESIGN.md §1)
+    #: a critical point of the shape series lies at or outside |ζ| = 1 − δ₁ (docs/method.md)
     CRITICAL_POINT = 1
     #: the second singular point z₁ = −1 is not inside the near-circle by at least δ₂
     SINGULAR_POINT = 2

@@ -465,7 +465,7 @@ class Parametrisation:
     y holds 2N scaled shape components, then (if τ varies) one τ coordinate in [0, 1]:
     A_n = start_n + (step/n)(y_{2n−2} + i y_{2n−1}) and τ = τ_lo + (τ_hi − τ_lo) y_τ.
     Dividing by n gives higher harmonics smaller steps, which conditions the search
-    (DESIGN.md §1).
+    (docs/method.md).
     """
 
     n: int
