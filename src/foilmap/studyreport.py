@@ -170,6 +170,17 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
     return lines
 
 
+def _logged_runs(out: Path, study: Study):
+    """(run, log) for every run of the study whose log holds at least one generation."""
+    for r in study.runs():
+        log_path, _ = run_paths(out, r.run_id)
+        if not log_path.exists():
+            continue
+        log = read_run(log_path)
+        if log.generations:
+            yield r, log
+
+
 def _has_feasible(out: Path, run) -> bool:
     try:
         return read_run(run_paths(out, run.run_id)[0]).best() is not None
@@ -192,13 +203,7 @@ def _plot_front_runs(out: Path, study: Study, path: Path) -> None:
     ax_h, ax_f = fig.subplots(1, 2)
     shown = 0
     names = None
-    for r in study.runs():
-        log_path, _ = run_paths(out, r.run_id)
-        if not log_path.exists():
-            continue
-        log = read_run(log_path)
-        if not log.generations:
-            continue
+    for r, log in _logged_runs(out, study):
         names = log.objective_names
         colour = f"C{shown % 10}"
         hv = log.gen.get("hypervolume")
@@ -249,13 +254,7 @@ def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
     ax_c = fig.add_subplot(2, 1, 1)
     finals = []
     colour = {r.run_id: f"C{i % 10}" for i, r in enumerate(study.runs())}  # one per run
-    for r in study.runs():
-        log_path, _ = run_paths(out, r.run_id)
-        if not log_path.exists():
-            continue
-        log = read_run(log_path)
-        if not log.generations:
-            continue
+    for r, log in _logged_runs(out, study):
         e, b = log.gen["evaluations"], log.gen["best_f"]
         ok = np.isfinite(b)
         if ok.any():
