@@ -469,11 +469,10 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
     star-shaped about 0, hence simple and one-to-one (Darboux), meeting the positive real axis
     only at z₁ = 1 and the negative one once, at x_π.  2. z₁ = −1 inside and the cut [−1, 1)
     outside the flow: x_π < −1.  3. |g + 1| > δ₂ on every arc (|g_m + 1| − Gδ > δ₂).
-    4. The Kármán–Trefftz stage one-to-one on the flow: arg t stays within a window narrower
-    than 2π/k (t^k is one-to-one on such a sector); otherwise the contour crosses itself.
+    4. The Kármán–Trefftz stage one-to-one on the flow (:func:`_stage2_simple`): no two
+    points of the contour with equal |t| and args 2π/k apart; otherwise it crosses itself.
     """
-    l1, l2, l3, gdte, mm, omh1, arg1h = (consts[0], consts[1], consts[2], consts[3], consts[4],
-                                         consts[5], consts[6])
+    l1, l2 = consts[0], consts[1]
     p = phis.shape[0]
     step = _TWO_PI / p
     # 1. star shape
@@ -987,7 +986,6 @@ def _surface_proxies(s, u, du, x, n_in, n_mask, integral0, s_te, closing_u, do_c
     if want & 2:
         # Thwaites: ∫ u⁵ ds exact for u linear between points, plus the stagnation start
         integral = integral0
-        j_sep = -1
         lam_prev = nan
         lam_min = _INF
         for i in range(n_mask):
@@ -999,7 +997,6 @@ def _surface_proxies(s, u, du, x, n_in, n_mask, integral0, s_te, closing_u, do_c
                 integral += poly * (s[i] - s[i - 1]) / 6.0
             lam = 0.45 * integral / u[i] ** 6 * du[i]
             if lam < -0.09:
-                j_sep = i
                 frac = 1.0
                 if i > 0:
                     frac = (-0.09 - lam_prev) / (lam - lam_prev)

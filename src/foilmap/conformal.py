@@ -20,8 +20,6 @@ from functools import lru_cache
 
 import numpy as np
 
-from .status import Status
-
 __all__ = [
     "SectionSet",
     "MapValues",
