@@ -70,3 +70,21 @@ def test_plots_do_not_switch_the_callers_backend(tmp_path):
         assert matplotlib.get_backend() == "pdf"
     finally:
         matplotlib.use(previous)
+
+
+def test_the_section_plot_puts_cp_over_its_place_on_the_section(tmp_path):
+    # regression: the Cp axes and the (equal-aspect) section axes spanned different widths, so
+    # the suction peak did not sit over its place on the section
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    from foilmap.plotting import section_figure
+
+    section = tmp_path / "s.toml"
+    section.write_text(SECTION_TEXT)
+    fig = section_figure(analyse(load_section(section).to_set(), cl=0.5))
+    FigureCanvasAgg(fig).draw()
+    ax_cp, ax_sec = fig.axes[:2]
+    a, b = ax_cp.get_position(), ax_sec.get_position()
+    assert abs(a.x0 - b.x0) < 1e-6 and abs(a.x1 - b.x1) < 1e-6
+    assert ax_cp.get_xlim() == ax_sec.get_xlim()
+    assert ax_cp.xaxis.get_tick_params()["labelbottom"] is True  # both plots carry x labels

@@ -45,6 +45,12 @@ def streamfunction_grid(analysis: Analysis, i: int = 0, radial: int = 90, angula
 def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "section",
                  i: int = 0, points: int = 241) -> None:
     """Write a PNG: Cp along the chord (axis inverted) above the section in its streamlines."""
+    section_figure(analysis, name, i, points).savefig(path, dpi=130)
+
+
+def section_figure(analysis: Analysis, name: str = "section", i: int = 0, points: int = 241):
+    """The figure of :func:`plot_section`: Cp over the section on one chord axis (a matplotlib
+    ``Figure``; the caller's pyplot state and backend are untouched)."""
     from matplotlib.figure import Figure
 
     ev = analysis.evaluation
@@ -61,7 +67,12 @@ def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "secti
     ax_cp.invert_yaxis()
     ax_cp.set_ylabel("Cp")
     ax_cp.grid(True, color="0.9")
-    ax_cp.legend(loc="lower right", frameon=False)
+    ax_cp.legend(loc="upper right", frameon=False)
+    ax_cp.tick_params(labelbottom=True)  # the chord axis is shared: label it on both plots
+    if ev.te_angle[i] > 0:  # Cp → 1 at a finite-angle edge is the ideal flow, not a fault
+        ax_cp.annotate("ideal-flow stagnation\nat the trailing edge", xy=(1.0, 1.0),
+                       xytext=(0.82, 0.72), fontsize=7.5, color="0.35", ha="right",
+                       arrowprops={"arrowstyle": "->", "color": "0.5", "lw": 0.7})
     cl, alpha = ev.cl[i], math.degrees(ev.alpha[i])
     ax_cp.set_title(
         f"{name}:  Cl = {cl:.3f} at {alpha:.2f}°,  Cp min = {ev.cp_min[i]:.3f} "
@@ -73,9 +84,10 @@ def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "secti
     levels = np.linspace(-span, span, 31)
     ax_sec.contour(x, y, psi, levels=levels, colors="#7f8c8d", linewidths=0.6, linestyles="solid")
     ax_sec.fill(zc.real, zc.imag, color="#d5d8dc", ec="#17202a", lw=1.2)
-    ax_sec.set_aspect("equal")
+    # equal scales by adjusting the y range, so that both plots span the same chord axis and the
+    # suction peak sits over its place on the section
     ax_sec.set_xlim(-0.3, 1.3)
-    ax_sec.set_ylim(-0.45, 0.45)
+    ax_sec.set_aspect("equal", adjustable="datalim")
     ax_sec.set_xlabel("x / chord")
     ax_sec.set_ylabel("y / chord")
     ax_sec.set_title(
@@ -85,7 +97,7 @@ def plot_section(analysis: Analysis, path: str | os.PathLike, name: str = "secti
     )
     fig.text(0.5, 0.01, CAUTION, ha="center", va="bottom", fontsize=6.5, wrap=True, color="0.3")
     fig.tight_layout(rect=(0, 0.04, 1, 1))
-    fig.savefig(path, dpi=130)
+    return fig
 
 
 def plot_fit(coords, fit, path) -> None:
