@@ -79,3 +79,14 @@ def test_open_results_of_a_front_study_points_to_front(tmp_path):
     assert all(np.isfinite(list(d.objectives.values())).all() for d in front)
     first = [d.objectives["peak_suction"] for d in front]
     assert first == sorted(first)
+
+
+def test_run_study_from_python_reads_the_engine_table(tmp_path):
+    # regression: [engine] keys were read only by the command line; a scheduler address with
+    # the local engine is contradictory, and the library now says so as the command does
+    text = small_study("eng", [1], 100) + '[engine]\nscheduler = "tcp://127.0.0.1:8786"\n'
+    path = tmp_path / "s.toml"
+    path.write_text(text)
+    with pytest.raises(foilmap.InputError, match="scheduler address needs the dask engine"):
+        foilmap.run_study(foilmap.load_study(path), tmp_path / "out")
+    assert not (tmp_path / "out").exists()  # nothing written

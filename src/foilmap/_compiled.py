@@ -260,12 +260,51 @@ def _te_speed_bound(b, k, u, ca, l1, l2, gdte, mm, omh1):
     return num / (4.0 * k * k * taulo ** (k - 1.0) * gpmin)
 
 
+#: the analytic derivatives the refinements find zeros of
+_D_LNQ = 0  # d ln q/dφ (speed maxima; the parameter is α')
+_D_LN_DIST_TE = 1  # d ln|z − k|/dφ (the leading edge, farthest from the trailing edge)
+
+
 @njit(cache=True)
-def _dlnq(a, a0, k, phi, alpha_c):
-    """d ln q/dφ, the analytic speed derivative."""
-    q2 = map_point(a, a0, k, phi)[5]
-    s = math.sin(phi - alpha_c) + math.sin(alpha_c)
-    return math.cos(phi - alpha_c) / s + q2.imag
+def _deriv(kind, a, a0, k, phi, param):
+    """One of the analytic derivatives along the circle, at φ."""
+    g, e, h, z, dz, q2 = map_point(a, a0, k, phi)
+    if kind == _D_LNQ:
+        s = math.sin(phi - param) + math.sin(param)
+        return math.cos(phi - param) / s + q2.imag
+    zeta = complex(math.cos(phi), math.sin(phi))
+    return -(zeta * dz / (z - k)).imag
+
+
+@njit(cache=True)
+def _illinois(kind, a, a0, k, param, lo, hi, flo, fhi):
+    """Zero of :func:`_deriv` in [lo, hi], where it changes sign, by the Illinois method
+    (modified regula falsi, Dowell & Jarratt 1971) to 1e-13 rad."""
+    side = 0
+    for _ in range(100):
+        if hi - lo <= 1e-13:
+            break
+        xm = hi - fhi * (hi - lo) / (fhi - flo)
+        if not (lo < xm < hi):
+            xm = 0.5 * (lo + hi)
+        fm = _deriv(kind, a, a0, k, xm, param)
+        if fm == 0.0 or not math.isfinite(fm):
+            lo = xm
+            hi = xm
+            break
+        if (fm > 0.0) == (flo > 0.0):
+            lo = xm
+            flo = fm
+            if side == -1:
+                fhi *= 0.5
+            side = -1
+        else:
+            hi = xm
+            fhi = fm
+            if side == 1:
+                flo *= 0.5
+            side = 1
+    return 0.5 * (lo + hi)
 
 
 @njit(cache=True)
@@ -276,39 +315,13 @@ def _speed(a, a0, k, u, phi, alpha_c):
 
 @njit(cache=True)
 def _refine_max(a, a0, k, u, alpha_c, lo, hi):
-    """Local maximum of q in [lo, hi] where d ln q/dφ goes from + to −: the Illinois method on
-    the analytic derivative to 1e-13 rad.  Returns (q, φ), or (−1, 0) without such a bracket."""
-    f0 = _dlnq(a, a0, k, lo, alpha_c)
-    f1 = _dlnq(a, a0, k, hi, alpha_c)
+    """Local maximum of q in [lo, hi] where d ln q/dφ goes from + to −, refined to 1e-13 rad.
+    Returns (q, φ), or (−1, 0) without such a bracket."""
+    f0 = _deriv(_D_LNQ, a, a0, k, lo, alpha_c)
+    f1 = _deriv(_D_LNQ, a, a0, k, hi, alpha_c)
     if not (f0 > 0.0 and f1 < 0.0):
         return -1.0, 0.0
-    x0 = lo
-    x1 = hi
-    side = 0
-    for _ in range(100):
-        if x1 - x0 <= 1e-13:
-            break
-        xm = x1 - f1 * (x1 - x0) / (f1 - f0)
-        if not (x0 < xm < x1):
-            xm = 0.5 * (x0 + x1)
-        fm = _dlnq(a, a0, k, xm, alpha_c)
-        if fm == 0.0 or not math.isfinite(fm):
-            x0 = xm
-            x1 = xm
-            break
-        if fm > 0.0:
-            x0 = xm
-            f0 = fm
-            if side == -1:
-                f1 *= 0.5
-            side = -1
-        else:
-            x1 = xm
-            f1 = fm
-            if side == 1:
-                f0 *= 0.5
-            side = 1
-    xs = 0.5 * (x0 + x1)
+    xs = _illinois(_D_LNQ, a, a0, k, alpha_c, lo, hi, f0, f1)
     return _speed(a, a0, k, u, xs, alpha_c), xs
 
 
@@ -421,6 +434,16 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
 
 
 @njit(cache=True)
+def _push_halves(sc, sd, top, c, d):
+    """Replace the arc |φ − c| ≤ d on a branch-and-bound stack by its two halves; the new top."""
+    sc[top] = c - 0.5 * d
+    sd[top] = 0.5 * d
+    sc[top + 1] = c + 0.5 * d
+    sd[top + 1] = 0.5 * d
+    return top + 2
+
+
+@njit(cache=True)
 def _schur_cohn(a, radius):
     """Whether every critical point of stage 1 (root of ζᴺ − Σ n Aₙ ζ^{N−n}) lies inside
     |ζ| < radius: the Schur–Cohn recursion (Henrici, Applied and Computational Complex
@@ -500,11 +523,7 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
             spent += 1
             if spent > _BUDGET or top + 2 >= sc.shape[0]:
                 return V_NOT_STARLIKE, 0.0
-            sc[top] = c - 0.5 * d
-            sd[top] = 0.5 * d
-            sc[top + 1] = c + 0.5 * d
-            sd[top + 1] = 0.5 * d
-            top += 2
+            top = _push_halves(sc, sd, top, c, d)
     # 2. the negative real-axis crossing, where arg g passes π (once: star shape)
     jx = -1
     for j in range(1, p):
@@ -553,11 +572,7 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
         spent += 1
         if spent > _BUDGET or top + 2 >= sc.shape[0]:
             return V_SINGULAR, dmin
-        sc[top] = c - 0.5 * d
-        sd[top] = 0.5 * d
-        sc[top + 1] = c + 0.5 * d
-        sd[top + 1] = 0.5 * d
-        top += 2
+        top = _push_halves(sc, sd, top, c, d)
     # 4. the Kármán–Trefftz stage one-to-one: see _stage2_simple
     if not _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
         return V_CROSSED, dmin
@@ -840,44 +855,14 @@ def _frame(a, a0, k, phis, zs):
             best = d
             jb = j
     x0 = phis[jb]
-
-    def dfun(phi):
-        g, e, h, z, dz, q2 = map_point(a, a0, k, phi)
-        zeta = complex(math.cos(phi), math.sin(phi))
-        return -(zeta * dz / (z - k)).imag
-
-    d0 = dfun(x0)
-    dp = dfun(x0 + step)
+    d0 = _deriv(_D_LN_DIST_TE, a, a0, k, x0, 0.0)
+    dp = _deriv(_D_LN_DIST_TE, a, a0, k, x0 + step, 0.0)
     if (d0 > 0.0) != (dp > 0.0):
         lo, hi, flo, fhi = x0, x0 + step, d0, dp
     else:
-        lo, hi, flo, fhi = x0 - step, x0, dfun(x0 - step), d0
+        lo, hi, flo, fhi = x0 - step, x0, _deriv(_D_LN_DIST_TE, a, a0, k, x0 - step, 0.0), d0
     if (flo > 0.0) != (fhi > 0.0):
-        side = 0
-        for _ in range(100):
-            if hi - lo <= 1e-13:
-                break
-            xm = hi - fhi * (hi - lo) / (fhi - flo)
-            if not (lo < xm < hi):
-                xm = 0.5 * (lo + hi)
-            fm = dfun(xm)
-            if fm == 0.0:
-                lo = xm
-                hi = xm
-                break
-            if (fm > 0.0) == (flo > 0.0):
-                lo = xm
-                flo = fm
-                if side == -1:
-                    fhi *= 0.5
-                side = -1
-            else:
-                hi = xm
-                fhi = fm
-                if side == 1:
-                    flo *= 0.5
-                side = 1
-        x0 = 0.5 * (lo + hi)
+        x0 = _illinois(_D_LN_DIST_TE, a, a0, k, 0.0, lo, hi, flo, fhi)
     z_le = map_point(a, a0, k, x0)[3]
     return x0, z_le
 

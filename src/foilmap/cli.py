@@ -172,25 +172,13 @@ def cmd_plot(args) -> int:
     return EXIT_OK
 
 
-def _progress(study, budget):
-    from .progress import Progress
-
-    runs = study.runs()
-    total = sum(budget or r.search["max_evaluations"] for r in runs)
-    return Progress(total_runs=len(runs), total_evals=total)
-
-
 def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) -> int:
     from .engine import run_study
+    from .progress import Progress
 
-    eng = engine or study.engine["kind"]
-    sched = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
-    workers = workers or study.engine["workers"] or None
-    if sched and eng != "dask":
-        raise InputError("--scheduler needs --engine dask (or kind = \"dask\" in [engine])")
-    prog = _progress(study, budget)
-    summaries = run_study(study, out, workers=workers, budget=budget, progress=prog, engine=eng,
-                          scheduler=sched)
+    summaries = run_study(study, out, workers=workers, budget=budget,
+                          progress=Progress.for_study(study, budget), engine=engine,
+                          scheduler=scheduler)
     failed = [s for s in summaries if s.get("state") != "complete"]
     print(f"study {study.name}: {len(summaries) - len(failed)} runs finished now, "
           f"{len(failed)} failed; logs in {out / 'runs'}")

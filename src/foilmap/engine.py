@@ -318,13 +318,21 @@ class _single_threaded_kernels:
 
 
 def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
-              progress=None, engine: str = "local", scheduler: str | None = None) -> list[dict]:
+              progress=None, engine: str | None = None, scheduler: str | None = None
+              ) -> list[dict]:
     """Run every unfinished run of a study; returns the summaries of the runs run now.
 
     ``engine`` is ``"local"`` (a process pool of ``workers`` on this machine) or ``"dask"`` (a
     Dask cluster at ``scheduler``, or a LocalCluster of ``workers`` when no address is given).
-    The same study and seeds give the same logs on every engine.
+    The same study and seeds give the same logs on every engine.  What is not given comes
+    from the study's ``[engine]`` table.
     """
+    engine = engine or study.engine["kind"]
+    scheduler = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
+    workers = workers or study.engine["workers"] or None
+    if scheduler and engine != "dask":
+        raise InputError("a scheduler address needs the dask engine (--engine dask, or "
+                         "kind = \"dask\" in [engine])")
     out = Path(out)
     # a budget set on the study object is recorded like --budget, so that resume keeps it
     study = prepare_folder(study, out, budget if budget is not None else study.budget)

@@ -31,6 +31,13 @@ class Progress:
     _last: float = 0.0
     _last_line: dict = field(default_factory=dict)
 
+    @classmethod
+    def for_study(cls, study, budget: int | None = None) -> "Progress":
+        """Progress of every run of a study (``budget`` evaluations each, or its own)."""
+        runs = study.runs()
+        return cls(total_runs=len(runs),
+                   total_evals=sum(budget or r.search["max_evaluations"] for r in runs))
+
     def __post_init__(self):
         if self.tty is None:
             isatty = getattr(self.stream, "isatty", None)

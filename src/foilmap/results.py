@@ -269,19 +269,9 @@ def run_study(study: Study, folder: str | Path, *, workers: int | None = None,
     outside ``folder``.  Ctrl-C commits every run; calling again resumes them.
     """
     from . import engine as _engine
+    from .progress import Progress
 
-    eng = engine or study.engine["kind"]
-    sched = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
-    workers = workers or study.engine["workers"] or None
-    if sched and eng != "dask":
-        raise InputError("a scheduler address needs engine 'dask'")
-    prog = None
-    if progress:
-        from .progress import Progress
-
-        runs = study.runs()
-        prog = Progress(total_runs=len(runs), total_evals=sum(
-            budget or r.search["max_evaluations"] for r in runs))
-    _engine.run_study(study, Path(folder), workers=workers, budget=budget, progress=prog,
-                      engine=eng, scheduler=sched)
+    _engine.run_study(study, Path(folder), workers=workers, budget=budget,
+                      progress=Progress.for_study(study, budget) if progress else None,
+                      engine=engine, scheduler=scheduler)
     return StudyResults(folder)
