@@ -17,8 +17,9 @@ import time
 from importlib.resources import files
 from pathlib import Path
 
-from foilmap.engine import run_study
-from foilmap.study import parse_study
+from foilmap.run.local import run_study
+from foilmap.store.studyfile import parse_study
+
 
 def bench_study(runs: int, evals: int):
     """The demo problem with ``runs`` seeds of ``evals`` evaluations each (invented data)."""

@@ -31,7 +31,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from panel import panel_solve  # noqa: E402
 
 from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients  # noqa: E402
-from foilmap.geometry import coordinates  # noqa: E402
+from foilmap.section.geometry import coordinates  # noqa: E402
 
 
 def population(batch: int, n: int, seed: int = 12345) -> SectionSet:

@@ -25,9 +25,9 @@ from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
 
-from foilmap.engine import run_study  # noqa: E402
-from foilmap.runlog import read_run  # noqa: E402
-from foilmap.study import parse_study  # noqa: E402
+from foilmap.run.local import run_study  # noqa: E402
+from foilmap.store.runlog import read_run  # noqa: E402
+from foilmap.store.studyfile import parse_study  # noqa: E402
 
 
 def study_text(seeds) -> str:

@@ -25,12 +25,12 @@ import time  # noqa: E402
 from importlib.resources import files  # noqa: E402
 from pathlib import Path  # noqa: E402
 
-
-from foilmap.engine import execute_run, prepare_folder  # noqa: E402
-from foilmap.objectives import Problem  # noqa: E402
-from foilmap.runlog import read_run  # noqa: E402
-from foilmap.search import is_finished, new_search, step  # noqa: E402
-from foilmap.study import parse_study  # noqa: E402
+from foilmap.design.problem import Problem  # noqa: E402
+from foilmap.design.search import is_finished, new_search, step  # noqa: E402
+from foilmap.run.single import execute_run
+from foilmap.store.folder import StudyFolder  # noqa: E402
+from foilmap.store.runlog import read_run  # noqa: E402
+from foilmap.store.studyfile import parse_study  # noqa: E402
 
 
 def measure(popsize: int, generations: int, repeats: int = 3) -> dict:
@@ -44,7 +44,7 @@ def measure(popsize: int, generations: int, repeats: int = 3) -> dict:
     for _ in range(repeats):
         with tempfile.TemporaryDirectory() as tmp:
             out = Path(tmp)
-            st = prepare_folder(study, out, None)
+            _, st = StudyFolder.prepare(study, out, None)
             run = st.runs()[0]
             t0 = time.perf_counter()
             execute_run(st, run, out)

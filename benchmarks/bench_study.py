@@ -60,7 +60,7 @@ def evaluations(folder: Path) -> int:
 
 
 def popsize(folder: Path) -> int:
-    from foilmap.runlog import read_run
+    from foilmap.store.runlog import read_run
 
     logs = sorted((folder / "runs").glob("*.h5"))
     return int(read_run(logs[0]).gen["popsize"][0]) if logs else 0

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from foilmap import evaluate
-from foilmap.boundary_layer import recovery_severity, stratford, thwaites
+from foilmap.section.proxies import recovery_severity, stratford, thwaites
 
 
 def test_thwaites_flat_plate():
@@ -87,10 +87,10 @@ def test_proxies_on_a_section_are_finite_and_ordered(cambered):
 
 def test_thwaites_at_the_stagnation_point_of_a_section(cambered):
     # the first points past the stagnation point follow u ∝ s: λ → 0.075 (Hiemenz)
-    from foilmap.conformal import CircleGrid, map_on_grid
-    from foilmap.evaluate import analyse
-    from foilmap.flow import surface_speed
-    from foilmap.surfaces import surfaces_from_stagnation
+    from foilmap.section.conformal import CircleGrid, map_on_grid
+    from foilmap.section.evaluation import analyse
+    from foilmap.section.flow import surface_speed
+    from foilmap.section.surfaces import surfaces_from_stagnation
 
     an = analyse(cambered, cl=0.4, proxies=())
     grid = CircleGrid.get(4096, cambered.n_coefficients)

@@ -9,9 +9,9 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients
-from foilmap._compiled import FIGURES, search_batch
-from foilmap.conformal import map_at
-from foilmap.status import Status
+from foilmap.section._compiled import FIGURES, search_batch
+from foilmap.section.conformal import map_at
+from foilmap.section.status import Status
 
 #: a needle-nosed section found by a 40,000-evaluation search for the lowest peak suction at
 #: Cl 0.5 with no leading-edge radius floor (foilmap's own search; test data)
@@ -154,7 +154,7 @@ def test_compiled_kernel_matches_the_reference_pipeline():
     for j, cl in enumerate((0.3, 0.7), start=1):
         other, _ = an.peak_suction_at(cl)
         np.testing.assert_allclose(peaks[ok, j], other[ok], rtol=1e-12)
-    from foilmap.geometry import exact_points_at_x
+    from foilmap.section.geometry import exact_points_at_x
 
     xs = np.array([0.3, 0.9])
     t_ref = (exact_points_at_x(sec, an.frame, an.split, -xs).imag

@@ -7,7 +7,6 @@ import json
 
 import numpy as np
 import pytest
-
 from conftest import SECTION_TEXT, cli
 
 from foilmap import analyse, load_section

@@ -8,7 +8,12 @@ import pytest
 from conftest import joukowski
 
 from foilmap import SectionSet, offset_circle_coefficients
-from foilmap.conformal import CircleGrid, critical_points_inside, map_at, map_on_grid
+from foilmap.section.conformal import (
+    CircleGrid,
+    critical_points_inside,
+    map_at,
+    map_on_grid,
+)
 
 
 def test_closure_maps_circle_point_one_to_trailing_edge(shaped):
@@ -87,7 +92,7 @@ def test_schur_cohn_agrees_with_polynomial_roots():
 def test_validity_does_not_depend_on_sampling():
     # near-circle passing 0.004 from z₁ = −1 (inside the 0.02 margin): caught at any resolution
     from foilmap import evaluate
-    from foilmap.status import Status
+    from foilmap.section.status import Status
 
     eps = 0.002  # circle centre −ε passes at −1 − 2ε
     sec = joukowski(-eps + 0.0j, 0.0)
@@ -100,7 +105,7 @@ def test_crossing_the_branch_cut_is_detected():
     # the circle through ζ = 1 with centre μ = +0.1 meets the real axis again at −0.8, inside
     # the Kármán–Trefftz cut [−1, 1]: z₁ = −1 lies outside it (test data, invented)
     from foilmap import evaluate
-    from foilmap.status import Status
+    from foilmap.section.status import Status
 
     for points in (64, 256, 1024):
         assert evaluate(joukowski(0.1 + 0.0j, 8.0), alpha=0.0, points=points).status[0] == \

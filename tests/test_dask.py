@@ -13,12 +13,12 @@ import time
 from pathlib import Path
 
 import pytest
-
-from foilmap.engine import run_study
-from foilmap.runlog import read_run
-from foilmap.study import parse_study
 from conftest import small_study
 from test_search import logs_equal
+
+from foilmap.run.local import run_study
+from foilmap.store.runlog import read_run
+from foilmap.store.studyfile import parse_study
 
 pytestmark = pytest.mark.slow
 
@@ -42,7 +42,7 @@ def test_forty_runs_on_a_local_cluster_match_the_local_engine(tmp_path):
 
 
 def test_a_killed_worker_costs_nothing(tmp_path):
-    from foilmap.dask_engine import DaskBackend
+    from foilmap.run.cluster import DaskBackend
 
     st = study(6, 2500)
     run_study(st, tmp_path / "ref", workers=2)

@@ -13,8 +13,9 @@ from conftest import cli
 from panel import panel_solve
 
 from foilmap import SectionSet, evaluate
-from foilmap.coordfile import load_coordinates
-from foilmap.fitting import fit_section
+from foilmap.section.fitting import fit_section
+from foilmap.store.coordfile import load_coordinates
+
 
 def test_export_of_a_section_re_evaluates(tmp_path, section_file):
     out = tmp_path / "out"
@@ -67,7 +68,6 @@ def test_trailing_edge_thickness_blend(tmp_path, section_file):
 
 def test_export_front_designs_with_mesh(tmp_path):
     import gmsh  # noqa: F401 - the mesh extra, installed with the test extra
-
     from test_fronts import run_folder
 
     folder, _ = run_folder(tmp_path, "mo", __import__("test_fronts").MO_STUDY
@@ -99,7 +99,7 @@ def test_export_front_designs_with_mesh(tmp_path):
 
 def test_mesh_without_gmsh_says_how_to_install(monkeypatch):
     from foilmap import InputError
-    from foilmap.meshing import check_gmsh
+    from foilmap.report.mesh import check_gmsh
 
     monkeypatch.setitem(sys.modules, "gmsh", None)  # as if the extra were not installed
     with pytest.raises(InputError, match=r'install the mesh extra with python -m pip install -e "\.\[mesh\]"'):

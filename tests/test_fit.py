@@ -12,11 +12,16 @@ import pytest
 from panel import panel_solve
 
 from foilmap import SectionSet, analyse, evaluate, load_section
-from foilmap.coordfile import normalise_loop, parse_coordinates
-from foilmap.evaluate import speed_at_stations
-from foilmap.fitting import contour_deviation, dense_reference, fit_coordinates, fit_section
-from foilmap.geometry import coordinates
-from foilmap.naca import naca4_coordinates, naca4_surfaces
+from foilmap.section.evaluation import speed_at_stations
+from foilmap.section.fitting import (
+    contour_deviation,
+    dense_reference,
+    fit_coordinates,
+    fit_section,
+)
+from foilmap.section.geometry import coordinates
+from foilmap.section.naca import naca4_coordinates, naca4_surfaces
+from foilmap.store.coordfile import normalise_loop, parse_coordinates
 
 
 def fitted(code: str, n: int = 48, points: int = 401):
@@ -228,8 +233,8 @@ def test_fit_command_and_a_study_started_from_it(tmp_path):
     assert rec.provenance["max_deviation_chords"] < 3e-4
     assert png.read_bytes()[:4] == b"\x89PNG"
     # a study may start from the section file or from the coordinates themselves
-    from foilmap.objectives import Problem
-    from foilmap.study import parse_study
+    from foilmap.design.problem import Problem
+    from foilmap.store.studyfile import parse_study
 
     for start in ("n2412.toml", "n2412.dat"):
         text = f"""

@@ -12,9 +12,9 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients
-from foilmap.conformal import CircleGrid, map_at, map_on_grid
-from foilmap.flow import surface_speed
-from foilmap.status import Status
+from foilmap.section.conformal import CircleGrid, map_at, map_on_grid
+from foilmap.section.flow import surface_speed
+from foilmap.section.status import Status
 
 
 def pressure_forces(sec: SectionSet, alpha: float, points: int):

@@ -13,16 +13,22 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
 from conftest import cli, small_study
 
 from foilmap import load_section
-from foilmap.engine import execute_run, prepare_folder
-from foilmap.fronts import FrontError, hypervolume, knee_index, merge_archive, nondominated_mask
-from foilmap.objectives import Outcome, Problem
-from foilmap.runlog import read_run
-from foilmap.search import is_finished, new_search, step
-from foilmap.study import parse_study
+from foilmap.design.fronts import (
+    FrontError,
+    hypervolume,
+    knee_index,
+    merge_archive,
+    nondominated_mask,
+)
+from foilmap.design.problem import Outcome, Problem
+from foilmap.design.search import is_finished, new_search, step
+from foilmap.run.single import execute_run
+from foilmap.store.folder import StudyFolder
+from foilmap.store.runlog import read_run
+from foilmap.store.studyfile import parse_study
 
 
 def test_hypervolume_2d_by_hand():
@@ -132,7 +138,7 @@ MO_STUDY = small_study(
 def run_folder(tmp_path, name, text=MO_STUDY, budget=None):
     study = parse_study(text)
     out = tmp_path / name
-    study = prepare_folder(study, out, budget)
+    _, study = StudyFolder.prepare(study, out, budget)
     for r in study.runs():
         execute_run(study, r, out)
     return out, study
@@ -183,7 +189,7 @@ def test_multi_objective_run_killed_and_resumed(tmp_path):
 
 
 def test_epsilon_sweep_merges_into_one_front_per_seed(tmp_path):
-    from foilmap.frontreport import collect_fronts, compare_fronts
+    from foilmap.report.compare import collect_fronts, compare_fronts
 
     text = MO_STUDY.replace('method = "comocma"\nkernels = 6\nmax_evaluations = 900',
                             'method = "epsilon"\nepsilon_levels = [0.6, 0.9, 1.4]\n'
@@ -238,8 +244,8 @@ def test_fronts_and_pick_commands(tmp_path):
     log = read_run(a / "runs" / f"{run_id}.h5")
     spec = next(s for s in study.runs() if s.run_id == run_id)
     prob = Problem.from_run(study, spec)
-    from foilmap.conformal import SectionSet
-    from foilmap.evaluate import analyse
+    from foilmap.section.conformal import SectionSet
+    from foilmap.section.evaluation import analyse
 
     an = analyse(SectionSet(rec.coefficients[None, :], np.radians([rec.te_angle_deg])), cl=0.5,
                  proxies=("severity",))

@@ -7,8 +7,8 @@ import numpy as np
 import pytest
 
 from foilmap import analyse
-from foilmap.conformal import map_at
-from foilmap.geometry import coordinates, thickness_at
+from foilmap.section.conformal import map_at
+from foilmap.section.geometry import coordinates, thickness_at
 
 
 def fine_contour(sec, an, n=400_000):

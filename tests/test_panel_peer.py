@@ -10,8 +10,8 @@ import pytest
 from panel import panel_solve
 
 from foilmap import analyse
-from foilmap.conformal import map_at
-from foilmap.geometry import coordinates
+from foilmap.section.conformal import map_at
+from foilmap.section.geometry import coordinates
 
 
 @pytest.mark.parametrize("alpha_deg", [0.0, 4.0])

@@ -11,9 +11,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import small_study
 
 import foilmap
-from conftest import small_study
 
 ROOT = Path(__file__).resolve().parents[1]
 

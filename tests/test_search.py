@@ -17,9 +17,10 @@ import numpy as np
 import pytest
 
 from foilmap import evaluate, load_section
-from foilmap.engine import execute_run, prepare_folder
-from foilmap.runlog import read_run
-from foilmap.study import parse_study
+from foilmap.run.single import execute_run
+from foilmap.store.folder import StudyFolder
+from foilmap.store.runlog import read_run
+from foilmap.store.studyfile import parse_study
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -67,7 +68,7 @@ def logs_equal(a: Path, b: Path) -> None:
 def one_run(tmp_path, name, budget=None, text=STUDY):
     study = parse_study(text)
     out = tmp_path / name
-    study = prepare_folder(study, out, budget)
+    _, study = StudyFolder.prepare(study, out, budget)
     run = study.runs()[0]
     execute_run(study, run, out)
     return out / "runs" / f"{run.run_id}.h5"
@@ -243,7 +244,7 @@ def test_bad_study_input_writes_nothing(tmp_path, args, message):
 
 def test_a_budget_set_on_the_study_reaches_the_workers(tmp_path):
     # regression: workers re-read the study text, which keeps its own budget
-    from foilmap.engine import run_study
+    from foilmap.run.local import run_study
 
     st = parse_study(STUDY).with_budget(60)
     summ = run_study(st, tmp_path / "b", workers=1)
@@ -338,7 +339,7 @@ def test_workers_get_the_validated_study_not_its_text(tmp_path):
     # worker parsed the text again and fitted the file again)
     from conftest import SECTION_TEXT, small_study
 
-    from foilmap.engine import run_study
+    from foilmap.run.local import run_study
 
     (tmp_path / "start.toml").write_text(SECTION_TEXT)
     text = small_study("fromfile", [1, 2], 150).replace(

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from foilmap import InputError, format_section, load_section
-from foilmap.sectionfile import parse_section
+from foilmap.store.sectionfile import parse_section
 
 GOOD = """
 [section]

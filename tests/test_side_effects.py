@@ -7,11 +7,11 @@ import os
 import stat
 
 import matplotlib
-
 from conftest import SECTION_TEXT, cli, small_study
+
 from foilmap import analyse, load_section
-from foilmap.engine import run_study
-from foilmap.study import parse_study
+from foilmap.run.local import run_study
+from foilmap.store.studyfile import parse_study
 
 
 def mode(path) -> int:
@@ -57,7 +57,7 @@ def test_exports_and_section_files_are_readable_by_colleagues(tmp_path):
 
 
 def test_plots_do_not_switch_the_callers_backend(tmp_path):
-    from foilmap.plotting import plot_section
+    from foilmap.report.plots import plot_section
 
     previous = matplotlib.get_backend()
     matplotlib.use("pdf")
@@ -77,7 +77,7 @@ def test_the_section_plot_puts_cp_over_its_place_on_the_section(tmp_path):
     # the suction peak did not sit over its place on the section
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
-    from foilmap.plotting import section_figure
+    from foilmap.report.plots import section_figure
 
     section = tmp_path / "s.toml"
     section.write_text(SECTION_TEXT)

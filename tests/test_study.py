@@ -8,7 +8,8 @@ from pathlib import Path
 import pytest
 
 from foilmap import InputError
-from foilmap.study import SCHEMA, parse_study
+from foilmap.design.study import SCHEMA
+from foilmap.store.studyfile import parse_study
 
 ROOT = Path(__file__).resolve().parents[1]
 

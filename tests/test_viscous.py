@@ -12,7 +12,7 @@ import pytest
 from test_fit import fitted
 
 from foilmap import analyse, load_section
-from foilmap.viscous import screen_analysis, screen_surface
+from foilmap.section.screening import screen_analysis, screen_surface
 
 
 def plate(n=3000):
@@ -88,8 +88,8 @@ def test_screen_command_json(tmp_path):
 
 
 def test_profile_drag_as_a_study_objective():
-    from foilmap.objectives import Problem
-    from foilmap.study import parse_study
+    from foilmap.design.problem import Problem
+    from foilmap.store.studyfile import parse_study
 
     text = """
 [study]

@@ -12,7 +12,7 @@ load_section, format_section
     Section files.
 load_study, run_study, open_results
     Studies from Python (notebooks): a validated study, its runs into a folder, and the folder's
-    results (:class:`~foilmap.results.StudyResults`: ``.runs``, ``.best()``, ``.front()``,
+    results (:class:`~foilmap.api.StudyResults`: ``.runs``, ``.best()``, ``.front()``,
     ``.history(run_id)``); see docs/python-api.md.
 offset_circle_coefficients
     The classic Joukowski / Kármán–Trefftz offset circle as a shape series.
@@ -23,15 +23,21 @@ by viscous analysis and physical tests; local codes and licensed engineering pra
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
-
-from .conformal import SectionSet, offset_circle_coefficients
-from .errors import InputError
-from .evaluate import Analysis, Evaluation, analyse, evaluate, surface_distribution
-from .results import RunResult, RunState, StudyResults, open_results, run_study
-from .sectionfile import SectionRecord, format_section, load_section
-from .status import Status
-from .study import Study, load_study
+from foilmap._version import __version__
+from foilmap.api import RunResult, RunState, StudyResults, open_results, run_study
+from foilmap.design.study import Study
+from foilmap.errors import InputError
+from foilmap.section.conformal import SectionSet, offset_circle_coefficients
+from foilmap.section.evaluation import (
+    Analysis,
+    Evaluation,
+    analyse,
+    evaluate,
+    surface_distribution,
+)
+from foilmap.section.status import Status
+from foilmap.store.sectionfile import SectionRecord, format_section, load_section
+from foilmap.store.studyfile import load_study
 
 __all__ = [
     "__version__",

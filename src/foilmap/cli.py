@@ -7,11 +7,10 @@ import argparse
 import json
 import math
 import sys
-import time
 from pathlib import Path
 
-from . import __version__
-from .errors import InputError
+from foilmap._version import __version__
+from foilmap.errors import InputError
 
 __all__ = ["main"]
 
@@ -69,8 +68,8 @@ def _add_operating_point(p: argparse.ArgumentParser) -> None:
 
 
 def _analyse(args, proxies=("severity",)):
-    from .evaluate import analyse
-    from .sectionfile import load_section
+    from foilmap.section.evaluation import analyse
+    from foilmap.store.sectionfile import load_section
 
     rec = load_section(args.section)
     kw = {"cl": args.cl} if args.cl is not None else {"alpha": math.radians(args.alpha)}
@@ -83,7 +82,7 @@ def _analyse(args, proxies=("severity",)):
 
 
 def _check_ok(rec, an) -> None:
-    from .status import Status, describe
+    from foilmap.section.status import Status, describe
 
     st = int(an.evaluation.status[0])
     if st != Status.OK:
@@ -92,9 +91,13 @@ def _check_ok(rec, an) -> None:
 
 
 def cmd_evaluate(args) -> int:
-    from .report import evaluation_record, format_summary, surface_table_csv
-    from .sectionfile import write_text_atomic
-    from .status import Status
+    from foilmap.report.text import (
+        evaluation_record,
+        format_summary,
+        surface_table_csv,
+    )
+    from foilmap.section.status import Status
+    from foilmap.store.sectionfile import write_text_atomic
 
     proxies = ("severity", "thwaites")
     rec, an = _analyse(args, proxies)
@@ -111,7 +114,7 @@ def cmd_evaluate(args) -> int:
         used = proxies + (("stratford",) if args.re is not None else ())
         print(format_summary(record, used))
     if args.table:
-        from .evaluate import surface_distribution
+        from foilmap.section.evaluation import surface_distribution
 
         zc, upper, q = surface_distribution(an, args.table_points, "cosine")
         write_text_atomic(args.table, surface_table_csv(zc[0], upper[0], q[0], rec.name))
@@ -121,10 +124,10 @@ def cmd_evaluate(args) -> int:
 
 
 def cmd_coords(args) -> int:
-    from .evaluate import analyse
-    from .geometry import coordinates
-    from .report import coordinates_text
-    from .sectionfile import load_section, write_text_atomic
+    from foilmap.report.text import coordinates_text
+    from foilmap.section.evaluation import analyse
+    from foilmap.section.geometry import coordinates
+    from foilmap.store.sectionfile import load_section, write_text_atomic
 
     rec = load_section(args.section)
     sec = rec.to_set()
@@ -163,7 +166,7 @@ def _write_png(out: Path, draw) -> None:
 
 
 def cmd_plot(args) -> int:
-    from .plotting import plot_section
+    from foilmap.report.plots import plot_section
 
     out = _png_target(args.output, "plot")
     rec, an = _analyse(args)
@@ -173,8 +176,8 @@ def cmd_plot(args) -> int:
 
 
 def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) -> int:
-    from .engine import run_study
-    from .progress import Progress
+    from foilmap.report.progress import Progress
+    from foilmap.run.local import run_study
 
     summaries = run_study(study, out, workers=workers, budget=budget,
                           progress=Progress.for_study(study, budget), engine=engine,
@@ -184,7 +187,7 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) 
           f"{len(failed)} failed; logs in {out / 'runs'}")
     for s in failed:
         print(f"  run {s['run']} failed: {s.get('error', 'unknown error')}")
-    from .studyreport import is_multi_objective, sharp_nose_warnings
+    from foilmap.report.study import is_multi_objective, sharp_nose_warnings
 
     for line in sharp_nose_warnings(out):
         print(line)
@@ -196,7 +199,7 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) 
 
 
 def cmd_run(args) -> int:
-    from .study import load_study
+    from foilmap.store.studyfile import load_study
 
     study = load_study(args.study)
     out = Path(args.out) if args.out else Path("results") / study.name
@@ -204,39 +207,39 @@ def cmd_run(args) -> int:
 
 
 def cmd_resume(args) -> int:
-    from .engine import load_folder
+    from foilmap.store.folder import StudyFolder
 
     out = Path(args.folder)
-    study = load_folder(out)
+    study = StudyFolder(out).study
     return _run_folder(study, out, args.workers, None, args.engine, args.scheduler)
 
 
 def cmd_status(args) -> int:
-    from .studyreport import folder_status, format_status
+    from foilmap.report.study import format_status
+    from foilmap.store.folder import StudyFolder
 
-    st = folder_status(Path(args.folder))
+    st = StudyFolder(args.folder).status()
     print(json.dumps(st, indent=1) if args.json else format_status(st))
     return EXIT_OK
 
 
 def cmd_best(args) -> int:
-    from .report import CAUTION
-    from .sectionfile import format_section, write_text_atomic
-    from .studyreport import best_design
+    from foilmap.report.text import CAUTION
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.sectionfile import format_section, write_text_atomic
 
-    b, run, study = best_design(Path(args.folder), args.run)
-    prov = {"study": study.name, "run": run.run_id, "log": b["log"], "evaluation": b["index"],
-            "generation": b["generation"], "objective": b["f"], "design_cl": run.point.cl}
-    text = format_section(f"{study.name}-{run.run_id}", b["coefficients"], b["te_angle_deg"], prov)
+    d = StudyFolder(args.folder).best_design(args.run)
+    text = format_section(f"{d.study_name}-{d.run_id}", d.coefficients, d.te_angle_deg,
+                          d.provenance())
     write_text_atomic(args.output, text)
-    print(f"best feasible design of {run.run_id} (objective {b['f']:.6g}, evaluation "
-          f"{b['index']}) written to {args.output}")
+    print(f"best feasible design of {d.run_id} (objective {d.fun:.6g}, evaluation "
+          f"{d.evaluation}) written to {args.output}")
     print(CAUTION)
     return EXIT_OK
 
 
 def cmd_plot_run(args) -> int:
-    from .studyreport import plot_runs
+    from foilmap.report.study import plot_runs
 
     out = _png_target(args.output, "plot-run")
     _write_png(out, lambda tmp: plot_runs(Path(args.folder), tmp))
@@ -244,49 +247,15 @@ def cmd_plot_run(args) -> int:
 
 
 def cmd_demo(args) -> int:
-    import shutil
-    from importlib.resources import files
+    from foilmap.demo import run_demo
 
-    from .conformal import SectionSet
-    from .study import parse_study
-    from .studyreport import best_design, plot_runs
-
-    text = files("foilmap").joinpath("data/demo.toml").read_text(encoding="utf-8")
-    study = parse_study(text, "foilmap demo")
-    out = Path(args.out)
-    if out.exists():
-        shutil.rmtree(out)  # the demo folder is the demo's own: start afresh
-    out.mkdir(parents=True)
-    (out / "demo-study.toml").write_text(text, encoding="utf-8")
-    t0 = time.time()
-    code = _run_folder(study, out, args.workers, None)
-    plot_runs(out, out / "convergence.png")
-    from .evaluate import analyse
-    from .plotting import plot_section
-    from .sectionfile import format_section, write_text_atomic
-
-    b, run, _ = best_design(out)
-    write_text_atomic(out / "best-section.toml", format_section(
-        f"demo-{run.run_id}", b["coefficients"], b["te_angle_deg"],
-        {"study": "demo", "run": run.run_id, "evaluation": b["index"], "objective": b["f"],
-         "design_cl": run.point.cl}))
-    an = analyse(SectionSet.single(b["coefficients"], b["te_angle_deg"]), cl=run.point.cl)
-    plot_section(an, out / "best-section.png", f"demo best ({run.run_id})")
-    took = time.time() - t0
-    print(f"demo finished in {took:.0f} s: best feasible objective {b['f']:.5f} "
-          f"(run {run.run_id})")
-    for name in ("demo-study.toml", "runs", "index.json", "convergence.png", "best-section.toml",
-                 "best-section.png"):
-        print(f"  {out / name}")
-    print("Next: foilmap status " + str(out) + "   |   foilmap evaluate "
-          + str(out / "best-section.toml") + " --cl 0.5")
-    return code
+    return run_demo(Path(args.out), args.workers, _run_folder)
 
 
 def cmd_naca(args) -> int:
-    from .naca import naca4_coordinates, parse_naca4
-    from .report import xy_lines
-    from .sectionfile import write_text_atomic
+    from foilmap.report.text import xy_lines
+    from foilmap.section.naca import naca4_coordinates, parse_naca4
+    from foilmap.store.sectionfile import write_text_atomic
 
     parse_naca4(args.code)
     xy = naca4_coordinates(args.code, args.points, closed_te=not args.open_te)
@@ -299,10 +268,10 @@ def cmd_naca(args) -> int:
 
 
 def cmd_fit(args) -> int:
-    from .coordfile import load_coordinates
-    from .fitting import fit_section
-    from .report import CAUTION
-    from .sectionfile import format_section, write_text_atomic
+    from foilmap.report.text import CAUTION
+    from foilmap.section.fitting import fit_section
+    from foilmap.store.coordfile import load_coordinates
+    from foilmap.store.sectionfile import format_section, write_text_atomic
 
     if args.report:
         report = _png_target(args.report, "fit")
@@ -325,7 +294,7 @@ def cmd_fit(args) -> int:
                                                   math.degrees(fit.te_angle), prov))
     print(f"section written to {args.output}")
     if args.report:
-        from .plotting import plot_fit
+        from foilmap.report.plots import plot_fit
 
         _write_png(report, lambda tmp: plot_fit(coords, fit, tmp))
     print(CAUTION)
@@ -345,8 +314,14 @@ def _reference(text: str | None):
 
 
 def cmd_fronts(args) -> int:
-    from .frontreport import collect_fronts, compare_fronts, format_fronts, fronts_csv, plot_fronts
-    from .sectionfile import write_text_atomic
+    from foilmap.report.compare import (
+        collect_fronts,
+        compare_fronts,
+        format_fronts,
+        fronts_csv,
+        plot_fronts,
+    )
+    from foilmap.store.sectionfile import write_text_atomic
 
     png = _png_target(args.output, "fronts") if args.output else None
     fronts = collect_fronts(args.paths)
@@ -365,9 +340,9 @@ def cmd_fronts(args) -> int:
 
 
 def cmd_pick(args) -> int:
-    from .frontreport import pick_design
-    from .report import CAUTION
-    from .sectionfile import format_section, write_text_atomic
+    from foilmap.report.compare import pick_design
+    from foilmap.report.text import CAUTION
+    from foilmap.store.sectionfile import format_section, write_text_atomic
 
     nearest = None
     if args.nearest is not None:
@@ -379,17 +354,14 @@ def cmd_pick(args) -> int:
             except ValueError:
                 raise InputError(f"--nearest {args.nearest!r}: write NAME=VALUE pairs separated "
                                  "by commas, for example peak_suction=0.8,severity=0.4") from None
-    sec, info = pick_design(Path(args.folder), nearest=nearest, knee=args.knee, index=args.index,
-                            run=args.run)
-    spec = info["spec"]
-    prov = {"run": info["run"], "evaluation": info["evaluation"], "design": info["id"],
-            "design_cl": spec.point.cl,
-            **{f"objective_{k}": v for k, v in info["objectives"].items()}}
-    write_text_atomic(args.output, format_section(f"{info['run']}-{info['evaluation']}",
-                                                  sec.coefficients[0], info["te_angle_deg"],
-                                                  prov))
-    vals = ", ".join(f"{k} {v:.6g}" for k, v in info["objectives"].items())
-    print(f"design {info['id']} ({vals}) written to {args.output}")
+    d = pick_design(Path(args.folder), nearest=nearest, knee=args.knee, index=args.index,
+                    run=args.run)
+    prov = {**d.provenance(), "design": d.id,
+            **{f"objective_{k}": v for k, v in d.objectives.items()}}
+    write_text_atomic(args.output, format_section(f"{d.run_id}-{d.evaluation}", d.coefficients,
+                                                  d.te_angle_deg, prov))
+    vals = ", ".join(f"{k} {v:.6g}" for k, v in d.objectives.items())
+    print(f"design {d.id} ({vals}) written to {args.output}")
     print(CAUTION)
     return EXIT_OK
 
@@ -399,8 +371,8 @@ SCREEN_NOTE = ("First screening by integral boundary-layer methods (Thwaites, Mi
 
 
 def cmd_screen(args) -> int:
-    from .report import CAUTION
-    from .viscous import DRAG_STATION, screen_analysis
+    from foilmap.report.text import CAUTION
+    from foilmap.section.screening import DRAG_STATION, screen_analysis
 
     rec, an = _analyse(args, ())
     _check_ok(rec, an)
@@ -429,63 +401,36 @@ def cmd_screen(args) -> int:
     return EXIT_OK
 
 
-def _constraints_record(names, values) -> dict:
-    return {n: {"value_g": float(v), "margin": float(-v), "met": bool(v <= 0)}
-            for n, v in zip(names, values)}
-
-
 def _designs_from_folder(args, folder: Path):
-    from .engine import run_paths
-    from .export import Design
-    from .frontreport import collect_fronts
-    from .runlog import read_run
-    from .study import Parametrisation
-    from .studyreport import best_design
+    """The designs ``export`` takes from a study folder: the best, the merged front (--all), or
+    the given ids."""
+    from foilmap.report.export import Design
+    from foilmap.store.folder import StudyFolder
 
-    picks = []  # (run spec, study, evaluation index)
+    sf = StudyFolder(folder)
     if args.best:
-        b, run, study = best_design(folder, args.run)
-        picks.append((run, study, b["index"]))
+        picks = [sf.best_design(args.run)]
     else:
-        fronts = collect_fronts([str(folder)])
-        ids = [i for f in fronts for i in f.ids]
-        wanted = ids if args.all else [i.strip() for i in args.ids.split(",") if i.strip()]
-        for i in wanted:
-            if i not in ids:
-                raise InputError(f"no design {i!r} on the fronts of {str(folder)!r} "
-                                 f"(see foilmap fronts {folder})")
-        for i in wanted:
-            rid, ev = i.split("#")
-            spec, study = next((s, f.study) for f in fronts for s in f.specs if s.run_id == rid)
-            picks.append((spec, study, int(ev)))
-    designs = []
-    for spec, study, ev in picks:
-        log = read_run(run_paths(folder, spec.run_id)[0])
-        x = log.evals["x"][ev]
-        sec = Parametrisation.from_shape(spec.shape).sections(x[None, :])
-        cl = args.cl if args.cl is not None else (None if args.alpha is not None
-                                                  else spec.point.cl)
-        designs.append(Design(
-            name=f"{spec.run_id}-{ev}", section=sec, cl=cl,
-            alpha=None if args.alpha is None else math.radians(args.alpha),
-            cl_range=spec.point.cl_range if cl == spec.point.cl else None,
-            reynolds=args.re if args.re is not None else spec.point.reynolds,
-            objectives=dict(zip(log.objective_names, map(float, log.evals["objectives"][ev]))),
-            constraints=_constraints_record(log.constraint_names, log.evals["constraints"][ev]),
-            provenance={"study": study.name, "run": spec.run_id, "log": str(log.path),
-                        "evaluation": ev, "generation": int(log.evals["generation"][ev]),
-                        "seed": spec.seed}))
-    return designs
+        if args.all:
+            wanted, _, _ = sf.merged_front(args.run)
+        else:
+            wanted = [i.strip() for i in args.ids.split(",") if i.strip()]
+            on_fronts = {i for f in sf.fronts() for i in f.ids}
+            for i in wanted:
+                if i not in on_fronts:
+                    raise InputError(f"no design {i!r} on the fronts of {str(folder)!r} "
+                                     f"(see foilmap fronts {folder})")
+        picks = [sf.design_by_id(i) for i in wanted]
+    alpha = None if args.alpha is None else math.radians(args.alpha)
+    return [Design.from_folder_design(d, cl=args.cl, alpha=alpha, reynolds=args.re)
+            for d in picks]
 
 
 def cmd_export(args) -> int:
-    import os
-    import shutil
-    import tempfile
-
-    from .export import Design, export_designs
-    from .report import CAUTION
-    from .sectionfile import load_section
+    from foilmap.report.export import Design, export_designs
+    from foilmap.report.progress import CountProgress
+    from foilmap.report.text import CAUTION
+    from foilmap.store.sectionfile import atomic_folder, load_section
 
     out = Path(args.output)
     if out.exists() and (not out.is_dir() or any(out.iterdir())):
@@ -493,7 +438,7 @@ def cmd_export(args) -> int:
     if not out.parent.exists():
         raise InputError(f"export: folder {str(out.parent)!r} does not exist")
     if args.mesh:
-        from .meshing import check_gmsh
+        from foilmap.report.mesh import check_gmsh
 
         check_gmsh()
     sel = Path(args.selection)
@@ -513,20 +458,12 @@ def cmd_export(args) -> int:
                           reynolds=args.re, provenance={"file": str(sel), **rec.provenance})]
     else:
         raise InputError(f"export: {str(sel)!r} is neither a section file nor a study folder")
-    from .sectionfile import umask_mode
-
-    tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", dir=out.parent))
-    os.chmod(tmp, umask_mode(directory=True))  # the bundle is a hand-off: readable as usual
-    try:
+    progress = CountProgress("exporting", len(designs)) if len(designs) > 1 else None
+    with atomic_folder(out) as tmp:
         rows = export_designs(designs, tmp, points=args.points, spacing=args.spacing,
                               te_thickness=args.te_thickness, mesh=args.mesh,
-                              farfield=args.farfield, first_cell=args.first_cell)
-        if out.exists():
-            out.rmdir()
-        os.replace(tmp, out)
-    finally:
-        if tmp.exists():
-            shutil.rmtree(tmp)
+                              farfield=args.farfield, first_cell=args.first_cell,
+                              progress=progress)
     print(f"{len(rows)} design(s) exported to {out} (summary.csv, one folder per design)")
     if args.te_thickness > 0:
         print(f"trailing edge opened to {args.te_thickness:g} chords by a linear thickness blend "

@@ -1,0 +1,249 @@
+"""A study's problem: objectives and constraints of a batch of search vectors.
+
+Constraints are in the form g ≤ 0 (feasible), one column each.  Candidates whose shape the map
+cannot represent, or that cannot reach a lift coefficient of the point, get their status code
+and a penalty instead of figures (:meth:`Problem.penalise`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from foilmap.design.study import Parametrisation, Point, RunSpec, Study
+from foilmap.section import _compiled
+from foilmap.section.conformal import DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN
+from foilmap.section.evaluation import Evaluation, analyse
+from foilmap.section.geometry import exact_points_at_x
+from foilmap.section.status import Status
+
+__all__ = ["Problem", "Outcome", "INVALID_CONSTRAINT", "front_vectors"]
+
+#: constraint value given to every constraint of a candidate with an invalid shape
+INVALID_CONSTRAINT = 1.0
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """Figures of one generation, shapes (B,) or (B, K)/(B, C)."""
+
+    f: np.ndarray  # weighted objective (penalised where invalid)
+    objectives: np.ndarray  # (B, K) raw objective values (NaN where invalid)
+    constraints: np.ndarray  # (B, C) g ≤ 0 feasible
+    status: np.ndarray  # (B,) int8
+    feasible: np.ndarray  # (B,) bool: valid and every g ≤ 0
+
+
+@dataclass(frozen=True)
+class Problem:
+    """The objectives and constraints of one run."""
+
+    param: Parametrisation
+    point: Point
+    objectives: tuple[tuple[str, float], ...]
+    constraints: dict
+    points: int
+    proxy_end: float
+    epsilon: float | None = None  # ε-constraint run: objective 2 ≤ ε, minimise objective 1
+    reference_point: tuple[float, ...] | None = None
+
+    @classmethod
+    def from_run(cls, study: Study, run: RunSpec) -> "Problem":
+        return cls(Parametrisation.from_shape(run.shape), run.point,
+                   tuple(study.objectives.items()), dict(study.constraints),
+                   run.search["points"], run.search["proxy_end"], run.epsilon,
+                   study.reference_point)
+
+    @property
+    def objective_names(self) -> list[str]:
+        return [n for n, _ in self.objectives]
+
+    def _specs(self) -> list[tuple[str, float, object]]:
+        """The study's constraints as (name, typical size, g(ev, st, peak) ≤ 0), in log order
+        (every bound is bound into its function as a default argument; ``st`` holds the exact
+        thickness at the ``min_thickness_at`` stations, shape (B, M)).
+
+        The search sees each g divided by its typical size (every g of order one for the
+        augmented Lagrangian); the logs keep physical values.
+        """
+        c = self.constraints
+        specs = []
+        if "min_thickness" in c:
+            specs.append(("min_thickness", 0.01, lambda ev, st, pk: c["min_thickness"] - ev.thickness))
+        if "max_thickness" in c:
+            specs.append(("max_thickness", 0.01, lambda ev, st, pk: ev.thickness - c["max_thickness"]))
+        if "thickness_x" in c:
+            lo, hi = c["thickness_x"]
+            specs.append(("thickness_x_low", 0.05, lambda ev, st, pk, lo=lo: lo - ev.thickness_x))
+            specs.append(("thickness_x_high", 0.05,
+                          lambda ev, st, pk, hi=hi: ev.thickness_x - hi))
+        if "min_le_radius" in c:
+            specs.append(("min_le_radius", 0.002,
+                          lambda ev, st, pk: c["min_le_radius"] - ev.le_radius))
+        if "min_te_angle_deg" in c:
+            tau = math.radians(c["min_te_angle_deg"])
+            specs.append(("min_te_angle", math.radians(1.0), lambda ev, st, pk: tau - ev.te_angle))
+        if "cm" in c:
+            lo, hi = c["cm"]
+            specs.append(("cm_low", 0.01, lambda ev, st, pk, lo=lo: lo - ev.cm_quarter_chord))
+            specs.append(("cm_high", 0.01, lambda ev, st, pk, hi=hi: ev.cm_quarter_chord - hi))
+        for i, (x, t) in enumerate(c.get("min_thickness_at", [])):
+            specs.append((f"thickness_at_{x:g}", 0.005,
+                          lambda ev, st, pk, i=i, t=t: t - st[:, i]))
+        if "max_peak_suction" in c:
+            specs.append(("max_peak_suction", 0.1, lambda ev, st, pk: pk - c["max_peak_suction"]))
+        return specs
+
+    @property
+    def constraint_names(self) -> list[str]:
+        names = [n for n, _, _ in self._specs()]
+        if self.epsilon is not None:
+            names.append(f"epsilon_{self.objective_names[1]}")
+        return names
+
+    @property
+    def constraint_scales(self) -> np.ndarray:
+        """Typical size of each constraint (see :meth:`_specs`), in log order."""
+        out = [sc for _, sc, _ in self._specs()]
+        if self.epsilon is not None:
+            out.append(max(0.05 * abs(self.epsilon), 1e-3))
+        return np.array(out)
+
+    def _proxies(self) -> tuple[str, ...]:
+        names = self.objective_names
+        p = []
+        if "severity" in names:
+            p.append("severity")
+        if "laminar_deficit" in names:
+            p.append("thwaites")
+        if "stratford_margin" in names:
+            p.append("stratford")
+        return tuple(p)
+
+    @property
+    def stations(self) -> np.ndarray:
+        """Chord stations of the ``min_thickness_at`` constraints, shape (M,)."""
+        return np.array([x for x, _ in self.constraints.get("min_thickness_at", [])], dtype=float)
+
+    def evaluate(self, y: np.ndarray) -> Outcome:
+        """Objectives and constraints of the search vectors ``y`` (B, D)."""
+        sec = self.param.sections(y)
+        if "profile_drag" in self.objective_names:
+            ev, peak, st, extra = self._evaluate_reference(sec)
+        else:
+            ev, peak, st = self._evaluate_compiled(sec)
+            extra = {}
+        status = ev.status.copy()
+        values = {
+            "peak_suction": peak,
+            "severity": ev.severity,
+            "stratford_margin": ev.stratford_margin,
+            "laminar_deficit": 1.0 - np.where(np.isnan(ev.thwaites_sep_x_upper),
+                                              self.proxy_end, ev.thwaites_sep_x_upper),
+            "cm_magnitude": np.abs(ev.cm_quarter_chord),
+            "area": ev.area,
+            **extra,
+        }
+        obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
+        weights = np.array([w for _, w in self.objectives])
+        g = self._constraints(ev, st, peak)
+        if self.epsilon is not None:  # minimise the first objective, bound the second
+            f = obj[:, 0].copy()
+            g = np.concatenate([g, (obj[:, 1] - self.epsilon)[:, None]], axis=1)
+        else:
+            f = obj @ weights
+        finite = np.isfinite(f) & np.all(np.isfinite(g), axis=1)
+        status = np.where((status == Status.OK) & ~finite, Status.NON_FINITE, status)
+        status = status.astype(np.int8)
+        ok = status == Status.OK
+        obj[~ok] = np.nan
+        f, g = self.penalise(f, g, ok)
+        feasible = ok & (np.all(g <= 0.0, axis=1) if g.shape[1] else True)
+        return Outcome(f, obj, g, status, feasible)
+
+    def _evaluate_compiled(self, sec):
+        """The compiled kernel: every figure, the peak suction at every Cl of the point
+        (certified) and the exact station thickness in one pass per section."""
+        want = sum(bit for name, bit in (("severity", 1), ("thwaites", 2), ("stratford", 4))
+                   if name in self._proxies())
+        status, fig, peaks, st = _compiled.search_batch(
+            np.ascontiguousarray(sec.coefficients), np.ascontiguousarray(sec.te_angle),
+            np.array(self.point.cls, dtype=float), int(self.points),
+            1.0 - DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN, float(self.proxy_end),
+            self.stations, want, float(self.point.reynolds or 0.0), _compiled.PEAK_TOLERANCE)
+        ev = Evaluation.from_figures(status, fig)
+        return ev, np.max(peaks, axis=1), st
+
+    def _evaluate_reference(self, sec):
+        """The numpy reference pipeline, for objectives the compiled kernel does not have
+        (the boundary-layer screening's profile drag)."""
+        from foilmap.section.screening import screen_analysis
+
+        an = analyse(sec, cl=self.point.cl, points=self.points, proxies=self._proxies(),
+                     reynolds=self.point.reynolds, proxy_end=self.proxy_end)
+        ev = an.evaluation
+        status = ev.status.copy()
+        peak = -ev.cp_min
+        for cl in self.point.cls[1:]:
+            other, stc = an.peak_suction_at(cl)
+            status = np.where(status == Status.OK, stc, status).astype(np.int8)
+            peak = np.fmax(peak, other)
+        xs = self.stations
+        if xs.size:
+            with np.errstate(all="ignore"):
+                zu = exact_points_at_x(sec, an.frame, an.split, -xs)
+                zl = exact_points_at_x(sec, an.frame, an.split, xs)
+            st = zu.imag - zl.imag
+        else:
+            st = np.zeros((len(sec), 0))
+        # the screening on the search's own circle grid (exact speeds at its samples)
+        drag = screen_analysis(an, self.point.reynolds, points=self.points).cd
+        from dataclasses import replace
+
+        return replace(ev, status=status), peak, st, {"profile_drag": drag}
+
+    def _constraints(self, ev, st, peak) -> np.ndarray:
+        cols = [fn(ev, st, peak) for _, _, fn in self._specs()]
+        nb = ev.status.shape[0]
+        return np.stack(cols, axis=1) if cols else np.zeros((nb, 0))
+
+    @staticmethod
+    def penalise(f: np.ndarray, g: np.ndarray, ok: np.ndarray):
+        """Penalty for invalid candidates: worse than every valid one of the generation.
+
+        f = w + 1 + |w| with w the largest valid f of the generation (CMA-ES uses ranks only),
+        and every constraint value is :data:`INVALID_CONSTRAINT`; with no valid candidate at all
+        f = 1000.  Deterministic: it depends only on the generation.
+        """
+        f = f.copy()
+        g = g.copy()
+        if np.any(ok):
+            worst = float(np.max(f[ok]))
+            f[~ok] = worst + 1.0 + abs(worst)
+        else:
+            f[:] = 1000.0
+        g[~ok] = INVALID_CONSTRAINT
+        return f, g
+
+
+def front_vectors(problem: Problem, out: Outcome) -> np.ndarray:
+    """Objective vectors for a multi-objective search, penalised where infeasible, (B, K).
+
+    Feasible: the raw objectives.  Valid but infeasible: each objective plus 10 × the sum of the
+    positive scaled constraint violations (a documented penalty; COMO-CMA-ES has no constraint
+    handling of its own).  Invalid shape: the reference point plus 1 + |reference| in every
+    objective, beyond every point that counts.
+    """
+    ref = np.asarray(problem.reference_point, dtype=float)
+    obj = out.objectives.copy()
+    nb = obj.shape[0]
+    if out.constraints.shape[1]:
+        viol = np.maximum(out.constraints / problem.constraint_scales, 0.0).sum(axis=1)
+    else:
+        viol = np.zeros(nb)
+    ok = out.status == Status.OK
+    vec = obj + 10.0 * viol[:, None]
+    vec[~ok] = ref + 1.0 + np.abs(ref)
+    return vec

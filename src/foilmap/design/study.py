@@ -1,0 +1,526 @@
+"""Study files: a declarative design study, validated once at load.
+
+A study names the parametrisation, the operating points, the objectives, the constraints, the
+search method and its budget, and the seeds.  It expands into independent runs
+(seeds × operating points × variants).  Every key, its unit, default and allowed range is in
+:data:`SCHEMA`, which ``docs/study-file.md`` documents (a test keeps the two in step).
+"""
+
+from __future__ import annotations
+
+import copy
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from foilmap.errors import InputError
+
+__all__ = [
+    "SCHEMA",
+    "OBJECTIVES",
+    "Study",
+    "Point",
+    "RunSpec",
+    "Parametrisation",
+    "parse_study",
+]
+
+#: objective names a study may minimise, with their meaning (all at the design point unless said)
+OBJECTIVES = {
+    "peak_suction": "-Cp_min, the largest over the design Cl and the ends of any Cl range",
+    "severity": "largest -(s/u) du/ds over the pressure recovery (Reynolds-free)",
+    "stratford_margin": "Stratford's turbulent separation margin (needs reynolds; >= 1 separates)",
+    "laminar_deficit": "1 - x/c of Thwaites laminar separation on the upper surface",
+    "cm_magnitude": "|Cm| about the quarter chord",
+    "area": "cross-section area in chord^2",
+    "profile_drag": "Cd of the integral boundary-layer screening (needs reynolds)",
+}
+
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+
+
+# --- a tiny schema: (type check, default, description) per key --------------------------------
+
+
+@dataclass(frozen=True)
+class Key:
+    kind: str  # "int", "float", "str", "range", "pairs", "ints", "choice", "bool", "names"
+    default: Any
+    doc: str
+    lo: float | None = None
+    hi: float | None = None
+    choices: tuple = ()
+    required: bool = False
+
+
+SCHEMA: dict[str, dict[str, Key]] = {
+    "study": {
+        "name": Key("name", None, "study name: letters, digits, '_', '-', '.'", required=True),
+        "description": Key("str", "", "free text"),
+        "seeds": Key("ints", None, "list of seeds, one run per seed", 0, 2**31 - 1, required=True),
+    },
+    "shape": {
+        "coefficients": Key("int", 6, "number N of shape-series coefficients A_1..A_N", 1, 32),
+        "start": Key("start", [[-0.09, 0.03]],
+                     "starting A_1, A_2, ... as [real, imag] pairs (missing ones are 0), or the "
+                     "path of a section file or a coordinates file (fitted)", -1.0, 1.0),
+        "step": Key("float", 0.02, "initial search step of A_1's components; A_n gets step/n",
+                    1e-6, 0.5),
+        "limit": Key("float", 0.15, "bound on |component of A_n - start_n|, divided by n",
+                     1e-4, 1.0),
+        "te_angle_deg": Key("range", [6.0, 14.0],
+                            "trailing-edge angle in degrees: a number (fixed) or [low, high]",
+                            0.0, 60.0),
+    },
+    "point": {
+        "name": Key("name", None, "operating-point name", required=True),
+        "cl": Key("float", None, "design lift coefficient", -5.0, 5.0, required=True),
+        "cl_range": Key("range", None,
+                        "[low, high]: peak suction is held over the ends and the design Cl",
+                        -5.0, 5.0),
+        "reynolds": Key("float", None, "chord Reynolds number (for stratford_margin)", 1e3, 1e10),
+    },
+    "objectives": {
+        name: Key("float", None, f"weight of {name}: {text}", 0.0, 1e6)
+        for name, text in OBJECTIVES.items()
+    },
+    "constraints": {
+        "min_thickness": Key("float", None, "smallest maximum thickness t/c", 0.0, 1.0),
+        "max_thickness": Key("float", None, "largest maximum thickness t/c", 0.0, 1.0),
+        "thickness_x": Key("range", None, "[low, high] x/c window for the maximum thickness",
+                           0.0, 1.0),
+        "min_le_radius": Key("float", None, "smallest leading-edge radius, chords", 0.0, 1.0),
+        "min_te_angle_deg": Key("float", None, "smallest trailing-edge angle, degrees", 0.0, 60.0),
+        "cm": Key("range", None, "[low, high] bounds on Cm c/4 at the design Cl", -2.0, 2.0),
+        "min_thickness_at": Key("pairs", None, "[[x/c, t/c], ...]: least thickness at stations",
+                                0.0, 1.0),
+        "max_peak_suction": Key("float", None, "largest -Cp_min over the evaluated Cl", 0.0, 100.0),
+    },
+    "search": {
+        "method": Key("choice", "cmaes", "search method: cmaes (one weighted objective), comocma "
+                      "(a Pareto front of 2-3 objectives), epsilon (sweeps of cmaes runs)",
+                      choices=("cmaes", "comocma", "epsilon")),
+        "kernels": Key("int", 8, "COMO-CMA-ES kernels (points the front is followed with)", 2, 200),
+        "epsilon_levels": Key("floats", None, "epsilon: bounds on the second objective, one "
+                              "single-objective run (minimising the first) per level", -1e6, 1e6),
+        "max_evaluations": Key("int", 3000, "evaluation budget of each run", 10, 10**8),
+        "popsize": Key("int", 0, "population size (0: CMA-ES default 4 + 3 ln D)", 0, 100000),
+        "restarts": Key("int", 2, "IPOP restarts, each doubling the population", 0, 20),
+        "points": Key("int", 256, "circle-plane samples per evaluation", 64, 8192),
+        "proxy_end": Key("float", 0.9, "chord station where the recovery proxies stop", 0.5, 1.0),
+    },
+}
+SCHEMA["engine"] = {
+    "kind": Key("choice", "local", "where runs go: local (a process pool on this machine) or "
+                "dask (a Dask cluster)", choices=("local", "dask")),
+    "scheduler": Key("str", "", "Dask scheduler address (empty: a LocalCluster on this machine)"),
+    "workers": Key("int", 0, "worker processes (0: the number of cores)", 0, 4096),
+}
+SCHEMA["fronts"] = {
+    "reference_point": Key("floats", None, "hypervolume reference point, one value per objective "
+                           "in the order of [objectives]", -1e6, 1e6),
+}
+_VARIANT_TABLES = ("shape", "search")
+_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant", "fronts",
+        "engine")
+
+
+def _fail(where: str, msg: str):
+    raise InputError(f"study file {where}: {msg}")
+
+
+def _num(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+
+def _check(where: str, path: str, key: Key, v):
+    """Validate one value against its schema entry; returns the normalised value."""
+    lo = -math.inf if key.lo is None else key.lo
+    hi = math.inf if key.hi is None else key.hi
+    rng = f"{key.lo:g} to {key.hi:g}" if key.lo is not None else ""
+    if key.kind == "int":
+        if not (isinstance(v, int) and not isinstance(v, bool)) or not lo <= v <= hi:
+            _fail(where, f"{path} = {v!r} is not allowed (a whole number from {rng})")
+        return int(v)
+    if key.kind == "float":
+        if not _num(v) or not lo <= v <= hi:
+            _fail(where, f"{path} = {v!r} is not allowed (a number from {rng})")
+        return float(v)
+    if key.kind in ("str", "name"):
+        if not isinstance(v, str) or (key.kind == "name" and not _NAME.match(v)):
+            what = "letters, digits, '_', '-', '.' (1 to 64, starting with a letter or digit)"
+            _fail(where, f"{path} = {v!r} is not allowed ({'a string' if key.kind == 'str' else what})")
+        return v
+    if key.kind == "choice":
+        if v not in key.choices:
+            _fail(where, f"{path} = {v!r} is not allowed (one of: {', '.join(key.choices)})")
+        return v
+    if key.kind == "ints":
+        ok = isinstance(v, list) and 1 <= len(v) <= 10000 and all(
+            isinstance(s, int) and not isinstance(s, bool) and lo <= s <= hi for s in v)
+        if not ok or len(set(v)) != len(v):
+            _fail(where, f"{path} = {v!r} is not allowed (a list of distinct whole numbers "
+                         f"from {rng})")
+        return [int(s) for s in v]
+    if key.kind == "range":
+        if _num(v) and key.default is not None and path.endswith("te_angle_deg"):
+            v = [v, v]
+        ok = isinstance(v, list) and len(v) == 2 and all(_num(x) and lo <= x <= hi for x in v)
+        if not ok or v[0] > v[1]:
+            _fail(where, f"{path} = {v!r} is not allowed ([low, high] with low <= high, "
+                         f"each from {rng})")
+        return [float(v[0]), float(v[1])]
+    if key.kind == "floats":
+        ok = isinstance(v, list) and 1 <= len(v) <= 1000 and all(_num(x) and lo <= x <= hi
+                                                               for x in v)
+        if not ok:
+            _fail(where, f"{path} = {v!r} is not allowed (a list of numbers from {rng})")
+        return [float(x) for x in v]
+    if key.kind == "start" and isinstance(v, str):
+        if not v.strip():
+            _fail(where, f"{path} = {v!r} is not allowed (pairs, or a file path)")
+        return v
+    if key.kind in ("pairs", "start"):
+        ok = isinstance(v, list) and 1 <= len(v) <= 64 and all(
+            isinstance(p, list) and len(p) == 2 and all(_num(x) and lo <= x <= hi for x in p)
+            for p in v)
+        if not ok:
+            _fail(where, f"{path} = {v!r} is not allowed (a list of [a, b] pairs, each number "
+                         f"from {rng})")
+        return [[float(a), float(b)] for a, b in v]
+    raise AssertionError(key.kind)
+
+
+def _table(where: str, name: str, data, schema: dict[str, Key], required_table=False) -> dict:
+    if data is None:
+        if required_table:
+            _fail(where, f"missing table [{name}]")
+        data = {}
+    if not isinstance(data, dict):
+        _fail(where, f"[{name}] must be a table")
+    out = {}
+    for k in data:
+        if k not in schema:
+            _fail(where, f"unknown key '{name}.{k}' (allowed: {', '.join(schema)})")
+    for k, key in schema.items():
+        if k in data:
+            out[k] = _check(where, f"{name}.{k}", key, data[k])
+        elif key.required:
+            _fail(where, f"missing key '{name}.{k}'")
+        else:
+            out[k] = copy.deepcopy(key.default)
+            if key.kind == "range" and _num(out[k]):
+                out[k] = [float(out[k])] * 2
+    return out
+
+
+# --- the typed, frozen study -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Point:
+    """One operating point."""
+
+    name: str
+    cl: float
+    cl_range: tuple[float, float] | None
+    reynolds: float | None
+
+    @property
+    def cls(self) -> tuple[float, ...]:
+        """Lift coefficients evaluated: the design Cl, then the range ends if any."""
+        if self.cl_range is None:
+            return (self.cl,)
+        return (self.cl, self.cl_range[0], self.cl_range[1])
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    """One run of a study: one search with one seed at one point for one variant (and, in an
+    ε-constraint sweep, one bound on the second objective)."""
+
+    run_id: str
+    seed: int
+    point: Point
+    variant: str
+    shape: dict
+    search: dict
+    epsilon: float | None = None
+    epsilon_index: int | None = None
+
+    @property
+    def front_key(self) -> str:
+        """Runs with the same key form one front (an ε sweep's levels merge into one)."""
+        base = f"{self.point.name}.{self.variant}" if self.variant else self.point.name
+        return f"{base}.s{self.seed}"
+
+
+@dataclass(frozen=True)
+class Study:
+    """A validated study; ``text`` is the file verbatim (stored in every run log)."""
+
+    name: str
+    description: str
+    seeds: tuple[int, ...]
+    shape: dict
+    points: tuple[Point, ...]
+    objectives: dict[str, float]
+    constraints: dict
+    search: dict
+    variants: tuple[tuple[str, dict], ...]
+    text: str = field(repr=False)
+    source: str = "<text>"
+    base_dir: str = "."  # folder that relative paths in the study (shape.start) are read from
+    reference_point: tuple[float, ...] | None = None  # [fronts] reference_point
+    engine: dict = field(default_factory=lambda: {"kind": "local", "scheduler": "", "workers": 0})
+    budget: int | None = None  # a budget set by with_budget (the text keeps the study's own)
+
+    def runs(self) -> list[RunSpec]:
+        """Expand into runs: variants × points × seeds, in that order."""
+        out = []
+        for vname, over in self.variants:
+            shape = {**self.shape, **over.get("shape", {})}
+            search = {**self.search, **over.get("search", {})}
+            levels = search.get("epsilon_levels") if search["method"] == "epsilon" else None
+            for p in self.points:
+                for s in self.seeds:
+                    base = f"{p.name}.{vname}" if vname else p.name
+                    if levels:
+                        for i, eps in enumerate(levels):
+                            out.append(RunSpec(f"{base}.e{i}.s{s}", s, p, vname, shape, search,
+                                               eps, i))
+                    else:
+                        out.append(RunSpec(f"{base}.s{s}", s, p, vname, shape, search))
+        return out
+
+    def with_budget(self, evals: int) -> "Study":
+        """The same study with every run's evaluation budget replaced."""
+        search = {**self.search, "max_evaluations": int(evals)}
+        variants = tuple(
+            (n, {**o, "search": {**o.get("search", {}), "max_evaluations": int(evals)}})
+            for n, o in self.variants)
+        return Study(self.name, self.description, self.seeds, self.shape, self.points,
+                     self.objectives, self.constraints, search, variants, self.text, self.source,
+                     self.base_dir, self.reference_point, self.engine, int(evals))
+
+
+def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
+                read_start=None) -> Study:
+    """Parse and validate a study's text; raises :class:`InputError` with one line.
+
+    This layer reads no files: a ``shape.start`` that names a file is handed to
+    ``read_start(file_name, base_dir)``, which returns ``(coefficients, te_angle_deg)`` or
+    raises :class:`InputError`.  :func:`foilmap.store.studyfile.load_study` supplies the reader
+    (section files and coordinate files, fitted); without one such a study is refused.
+    """
+    where = repr(source)
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        _fail(where, f"is not valid TOML: {exc}")
+    for k in data:
+        if k not in _TOP:
+            _fail(where, f"unknown table or key {k!r} (allowed: {', '.join(_TOP)})")
+    st = _table(where, "study", data.get("study"), SCHEMA["study"], required_table=True)
+    shape = _table(where, "shape", data.get("shape"), SCHEMA["shape"])
+    raw_points = data.get("point")
+    if not isinstance(raw_points, list) or not raw_points:
+        _fail(where, "needs at least one [[point]] table (an operating point with name and cl)")
+    points = []
+    for i, rp in enumerate(raw_points, start=1):
+        p = _table(where, f"point[{i}]", rp, SCHEMA["point"])
+        if p["cl_range"] is not None and not p["cl_range"][0] <= p["cl"] <= p["cl_range"][1]:
+            _fail(where, f"point[{i}].cl = {p['cl']:g} is outside its cl_range "
+                         f"{p['cl_range']!r}")
+        points.append(Point(p["name"], p["cl"], None if p["cl_range"] is None
+                            else tuple(p["cl_range"]), p["reynolds"]))
+    if len({p.name for p in points}) != len(points):
+        _fail(where, "point names must be distinct")
+    obj = data.get("objectives")
+    if not isinstance(obj, dict) or not obj:
+        _fail(where, f"needs an [objectives] table naming at least one of: {', '.join(OBJECTIVES)}")
+    objectives = {k: v for k, v in _table(where, "objectives", obj, SCHEMA["objectives"]).items()
+                  if v is not None}
+    if not any(w > 0 for w in objectives.values()):
+        _fail(where, "[objectives]: at least one weight must be positive")
+    for needs_re in ("stratford_margin", "profile_drag"):
+        if needs_re in objectives:
+            for p in points:
+                if p.reynolds is None:
+                    _fail(where, f"objective {needs_re} needs 'reynolds' at point {p.name!r}")
+    cons = _table(where, "constraints", data.get("constraints"), SCHEMA["constraints"])
+    cons = {k: v for k, v in cons.items() if v is not None}
+    search = _table(where, "search", data.get("search"), SCHEMA["search"])
+    variants: list[tuple[str, dict]] = []
+    raw_var = data.get("variant", [])
+    if not isinstance(raw_var, list):
+        _fail(where, "'variant' must be a list of [[variant]] tables")
+    for i, rv in enumerate(raw_var, start=1):
+        if not isinstance(rv, dict) or "name" not in rv:
+            _fail(where, f"variant[{i}] needs a 'name'")
+        vname = _check(where, f"variant[{i}].name", Key("name", None, ""), rv["name"])
+        over = {}
+        for k, v in rv.items():
+            if k == "name":
+                continue
+            if k not in _VARIANT_TABLES or not isinstance(v, dict):
+                _fail(where, f"unknown key 'variant[{i}].{k}' (allowed: name, "
+                             f"{', '.join(t + '.KEY' for t in _VARIANT_TABLES)})")
+            sub = {}
+            for kk, vv in v.items():
+                if kk not in SCHEMA[k]:
+                    _fail(where, f"unknown key 'variant[{i}].{k}.{kk}' "
+                                 f"(allowed: {', '.join(SCHEMA[k])})")
+                sub[kk] = _check(where, f"variant[{i}].{k}.{kk}", SCHEMA[k][kk], vv)
+            over[k] = sub
+        variants.append((vname, over))
+    if len({n for n, _ in variants}) != len(variants):
+        _fail(where, "variant names must be distinct")
+    if not variants:
+        variants = [("", {})]
+    fr = _table(where, "fronts", data.get("fronts"), SCHEMA["fronts"])
+    ref = fr["reference_point"]
+    if ref is not None and len(ref) != len(objectives):
+        _fail(where, f"fronts.reference_point has {len(ref)} values but [objectives] names "
+                     f"{len(objectives)} ({', '.join(objectives)})")
+    for vname, over in [("", {})] + variants:
+        srch = {**search, **over.get("search", {})}
+        tag = f"variant {vname!r}: " if vname else ""
+        if srch["method"] in ("comocma", "epsilon") and not 2 <= len(objectives) <= 3:
+            _fail(where, f"{tag}search.method = {srch['method']!r} needs 2 or 3 objectives in "
+                         f"[objectives], not {len(objectives)}")
+        if srch["method"] == "comocma" and ref is None:
+            _fail(where, f"{tag}search.method = 'comocma' needs fronts.reference_point")
+        if srch["method"] == "epsilon":
+            if len(objectives) != 2:
+                _fail(where, f"{tag}search.method = 'epsilon' sweeps the second of exactly 2 "
+                             "objectives")
+            if not srch.get("epsilon_levels"):
+                _fail(where, f"{tag}search.method = 'epsilon' needs search.epsilon_levels")
+    _resolve_start(where, "shape.start", shape, base_dir, read_start)
+    for i, (_, over) in enumerate(variants, start=1):
+        if "start" in over.get("shape", {}):
+            _resolve_start(where, f"variant[{i}].shape.start", over["shape"], base_dir,
+                           read_start)
+    eng = _table(where, "engine", data.get("engine"), SCHEMA["engine"])
+    study = Study(st["name"], st["description"], tuple(st["seeds"]), shape, tuple(points),
+                  objectives, cons, search, tuple(variants), text, source, base_dir,
+                  None if ref is None else tuple(ref), eng)
+    for run in study.runs():
+        _check_shape(where, run)
+    return study
+
+
+def _resolve_start(where: str, path: str, shape: dict, base_dir: str | None, read_start) -> None:
+    """Resolve a start given as a file name through ``read_start``.
+
+    The coefficients go to ``start_pairs`` (all of them: a run keeps its first N) and the
+    section's trailing-edge angle to ``start_te_angle_deg``.
+    """
+    start = shape["start"]
+    if not isinstance(start, str):
+        return
+    if read_start is None:
+        _fail(where, f"{path} = {start!r} names a file; load the study with "
+                     "foilmap.load_study(path), which reads it")
+    try:
+        coeffs, tau = read_start(start, base_dir)
+    except InputError as exc:
+        _fail(where, f"{path} = {start!r}: {exc}")
+    shape["start_pairs"] = [[float(a.real), float(a.imag)] for a in coeffs]
+    shape["start_te_angle_deg"] = float(tau)
+
+
+def _check_shape(where: str, run: RunSpec) -> None:
+    n = run.shape["coefficients"]
+    if not isinstance(run.shape["start"], str) and len(run.shape["start"]) > n:
+        _fail(where, f"shape.start has {len(run.shape['start'])} pairs but shape.coefficients "
+                     f"= {n} (run {run.run_id})")
+
+
+# --- design variables --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Parametrisation:
+    """Map between search vectors y and sections.
+
+    y holds 2N scaled shape components, then (if τ varies) one τ coordinate in [0, 1]:
+    A_n = start_n + (step/n)(y_{2n−2} + i y_{2n−1}) and τ = τ_lo + (τ_hi − τ_lo) y_τ.
+    Dividing by n gives higher harmonics smaller steps, which conditions the search
+    (docs/method.md).
+    """
+
+    n: int
+    start: np.ndarray  # complex (N,)
+    step: float
+    limit: float
+    tau_range: tuple[float, float]  # radians
+
+    start_tau: float | None = None  # radians, the starting section's own angle if given
+
+    @classmethod
+    def from_shape(cls, shape: dict) -> "Parametrisation":
+        n = shape["coefficients"]
+        start = np.zeros(n, dtype=complex)
+        pairs = shape.get("start_pairs") or shape["start"]
+        for i, (a, b) in enumerate(pairs[:n]):  # coefficients beyond N are dropped
+            start[i] = complex(a, b)
+        lo, hi = shape["te_angle_deg"]
+        tau0 = shape.get("start_te_angle_deg")
+        return cls(n, start, shape["step"], shape["limit"], (math.radians(lo), math.radians(hi)),
+                   None if tau0 is None else math.radians(tau0))
+
+    @property
+    def tau_free(self) -> bool:
+        return self.tau_range[1] > self.tau_range[0]
+
+    @property
+    def dimension(self) -> int:
+        return 2 * self.n + (1 if self.tau_free else 0)
+
+    def x0(self) -> np.ndarray:
+        """The start: the start coefficients and the starting section's τ (else mid-range)."""
+        y = np.zeros(self.dimension)
+        if self.tau_free:
+            lo, hi = self.tau_range
+            y[-1] = 0.5 if self.start_tau is None else float(
+                np.clip((self.start_tau - lo) / (hi - lo), 0.0, 1.0))
+        return y
+
+    def bounds(self) -> tuple[list, list]:
+        """Per-coordinate bounds for CMA-ES's BoundTransform."""
+        b = self.limit / self.step  # |y| ≤ limit/step gives |ΔA_n| ≤ limit/n
+        lo = [-b] * (2 * self.n)
+        hi = [b] * (2 * self.n)
+        if self.tau_free:
+            lo.append(0.0)
+            hi.append(1.0)
+        return lo, hi
+
+    def sigma_scales(self) -> np.ndarray:
+        """Relative initial step per coordinate (CMA_stds): τ gets a quarter of its range."""
+        s = np.ones(self.dimension)
+        if self.tau_free:
+            s[-1] = 0.25
+        return s
+
+    def sections(self, y: np.ndarray):
+        """Sections of search vectors ``y`` (B, D)."""
+        from foilmap.section.conformal import SectionSet
+
+        y = np.atleast_2d(y)
+        n = np.arange(1, self.n + 1)
+        a = self.start[None, :] + (self.step / n) * (y[:, 0 : 2 * self.n : 2]
+                                                     + 1j * y[:, 1 : 2 * self.n : 2])
+        if self.tau_free:
+            lo, hi = self.tau_range
+            tau = lo + (hi - lo) * np.clip(y[:, -1], 0.0, 1.0)
+        else:
+            tau = np.full(y.shape[0], self.tau_range[0])
+        return SectionSet(a, tau)
+

@@ -1,0 +1,171 @@
+"""Reading study folders for people: status per run, warnings, convergence plots.
+
+Everything is read through :class:`~foilmap.store.folder.StudyFolder`.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from foilmap.errors import InputError
+from foilmap.report.text import plural
+from foilmap.store.folder import StudyFolder, is_multi_objective
+
+__all__ = ["format_status", "sharp_nose_warnings", "runs_figure", "plot_runs",
+           "LE_RADIUS_FLOOR", "is_multi_objective"]
+
+
+def format_status(st: dict) -> str:
+    """The text of ``foilmap status`` from :meth:`StudyFolder.status`."""
+    rate = st.get("evaluations_per_s")
+    head = (f"study {st['study']} in {st['folder']}: " + ", ".join(
+        f"{n} {k}" for k, n in sorted(st["counts"].items()))
+        + f"; {st['evaluations']} evaluations"
+        + (f", {rate:.0f} per second of search" if rate else ""))
+    lines = [head, ""]
+    cols = (f"{'run':<28} {'state':<11} {'gens':>6} {'evals':>8} {'best feasible':>14} "
+            f"{'time s':>8}")
+    lines += [cols, "-" * len(cols)]
+    for r in st["runs"]:
+        best = "-" if r["best"] is None else f"{r['best']:.6g}"
+        if r["best"] is None and r.get("hypervolume") is not None:
+            best = f"HV {r['hypervolume']:.5g}"  # a multi-objective run's measure
+        el = "-" if r["elapsed_s"] is None else f"{r['elapsed_s']:.1f}"
+        lines.append(f"{r['run']:<28} {r['state']:<11} {r['generations']:>6} "
+                     f"{r['evaluations']:>8} {best:>14} {el:>8}")
+    return "\n".join(lines)
+
+
+#: a leading-edge radius below about 0.2 % of the chord is a needle nose that no real section
+#: should have: sensitive to incidence, hard to build and to keep attached (common practice)
+LE_RADIUS_FLOOR = 0.002
+
+
+def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
+    """One warning line per run whose best feasible design has a leading-edge radius below
+    ``floor`` (chords), naming the study key that prevents it."""
+    from foilmap.section.evaluation import evaluate
+
+    folder = StudyFolder(out)
+    lines = []
+    for r, log in folder.logged_runs():
+        b = log.best()
+        if b is None:
+            continue
+        d = folder.design(r.run_id, b["index"], log)
+        radius = float(evaluate(d.section, cl=r.point.cl, proxies=()).le_radius[0])
+        if radius < floor:
+            lines.append(f"warning: the best design of run {r.run_id} has a leading-edge radius "
+                         f"of {radius:.2g} c, below the practical floor of about {floor:g} c; "
+                         f"set constraints.min_le_radius in the study to keep the search away "
+                         f"from needle noses")
+    return lines
+
+
+def _front_runs_figure(folder: StudyFolder):
+    """Hypervolume history and final front of every run of a multi-objective study."""
+    from matplotlib.figure import Figure
+
+    from foilmap.report.text import CAUTION
+
+    fig = Figure(figsize=(11, 5.2))
+    ax_h, ax_f = fig.subplots(1, 2)
+    shown = 0
+    names = None
+    for r, log in folder.logged_runs():
+        names = log.objective_names
+        colour = f"C{shown % 10}"
+        hv = log.gen.get("hypervolume")
+        if hv is not None and np.isfinite(hv).any():
+            ax_h.plot(log.gen["evaluations"], hv, lw=1.2, color=colour, label=r.run_id)
+        front = log.evals["objectives"][log.front()]
+        if front.shape[0] and front.shape[1] >= 2:
+            order = np.argsort(front[:, 0])
+            ax_f.plot(front[order, 0], front[order, 1], ".-", ms=4, lw=0.8, color=colour,
+                      label=r.run_id)
+        shown += 1
+    if not shown:
+        raise InputError(f"study folder {str(folder.path)!r} has no run with a logged generation yet: "
+                         "nothing to plot")
+    ax_h.set_xlabel("evaluations")
+    ax_h.set_ylabel("hypervolume of the feasible archive")
+    ax_h.set_title(f"study {folder.study.name}: hypervolume of {plural(shown, 'run')}",
+                   fontsize=10)
+    ax_h.grid(True, color="0.9")
+    if names:
+        ax_f.set_xlabel(names[0])
+        ax_f.set_ylabel(names[1])
+    ax_f.set_title("final fronts (minimised)", fontsize=10)
+    ax_f.grid(True, color="0.9")
+    if shown <= 12:
+        ax_f.legend(fontsize=7, frameon=False, ncol=2)
+    fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
+    fig.tight_layout(rect=(0, 0.04, 1, 1))
+    return fig
+
+
+def runs_figure(out: Path, best_count: int = 4):
+    """A Figure of the convergence of every run, and the best sections with their Cp (for a
+    multi-objective study, the hypervolume history and the final fronts)."""
+    from matplotlib.figure import Figure
+
+    from foilmap.report.text import CAUTION
+    from foilmap.section.evaluation import analyse, surface_distribution
+
+    folder = StudyFolder(out)
+    study = folder.study
+    if is_multi_objective(study):
+        return _front_runs_figure(folder)
+    if not any(log.best() is not None for _, log in folder.logged_runs()):
+        raise InputError(f"no run of study {study.name!r} has a feasible design yet: nothing to "
+                         f"plot (foilmap status {out} shows each run)")
+    fig = Figure(figsize=(11, 8.5))
+    ax_c = fig.add_subplot(2, 1, 1)
+    finals = []
+    colour = {r.run_id: f"C{i % 10}" for i, r in enumerate(study.runs())}  # one per run
+    for r, log in folder.logged_runs():
+        e, b = log.gen["evaluations"], log.gen["best_f"]
+        ok = np.isfinite(b)
+        if ok.any():
+            ax_c.plot(e[ok], b[ok], lw=1.2, color=colour[r.run_id], label=r.run_id)
+            finals.append((float(b[ok][-1]), r.run_id))
+    lows = [f for f, _ in finals]
+    firsts = [ln.get_ydata()[0] for ln in ax_c.get_lines()]
+    if lows and min(lows) > 0 and max(firsts) / min(lows) > 10:  # log scale where it suits
+        ax_c.set_yscale("log")
+    ax_c.set_xlabel("evaluations")
+    ax_c.set_ylabel("best feasible objective")
+    ax_c.grid(True, which="both", color="0.9")
+    ax_c.set_title(f"study {study.name}: convergence of {plural(len(finals), 'run')}",
+                   fontsize=10)
+    if len(finals) <= 12:
+        ax_c.legend(fontsize=7, frameon=False, ncol=2)
+    ax_s = fig.add_subplot(2, 2, 3)
+    ax_p = fig.add_subplot(2, 2, 4)
+    for f, rid in sorted(finals)[:best_count]:
+        d = folder.best_design(rid)
+        an = analyse(d.section, cl=d.design_cl, proxies=())
+        zc, up, q = surface_distribution(an, 201)
+        ax_s.plot(zc[0].real, zc[0].imag, lw=1.2, color=colour[rid], label=f"{rid}: {f:.4g}")
+        ax_p.plot(zc[0].real, 1 - q[0] ** 2, lw=1.0, color=colour[rid])
+    ax_s.set_aspect("equal")
+    ax_s.set_xlabel("x / chord")
+    ax_s.set_title("best sections", fontsize=10)
+    # the legend in the free space under the (flat, equal-aspect) section axes, in figure
+    # coordinates, so that it never covers the axis label
+    fig.legend(*ax_s.get_legend_handles_labels(), fontsize=7, frameon=False, ncol=2,
+               loc="lower left", bbox_to_anchor=(0.06, 0.06))
+    ax_p.invert_yaxis()
+    ax_p.set_xlabel("x / chord")
+    ax_p.set_ylabel("Cp at the design Cl")
+    ax_p.grid(True, color="0.9")
+    fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    return fig
+
+
+def plot_runs(out: Path, path: Path, best_count: int = 4) -> None:
+    """Write :func:`runs_figure` to ``path`` (PNG)."""
+    runs_figure(out, best_count).savefig(path, dpi=120)

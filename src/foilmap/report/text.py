@@ -1,0 +1,175 @@
+"""Figures for people and for programs: the JSON object and the text summary of an evaluation.
+
+Angles are converted to degrees here, at the surface; the kernels work in radians.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from foilmap.section.evaluation import Evaluation
+from foilmap.section.status import Status, describe
+
+__all__ = [
+    "CAUTION",
+    "CONVENTIONS",
+    "evaluation_record",
+    "format_summary",
+    "format_number",
+    "plural",
+    "surface_table_csv",
+    "coordinates_text",
+    "xy_lines",
+]
+
+#: printed in every report and stored in every export
+CAUTION = (
+    "Ideal-flow screening result: a section that carries loads or people must be checked by "
+    "viscous analysis and physical tests; local codes and licensed engineering practice govern."
+)
+#: units and sign conventions, printed with every report
+CONVENTIONS = (
+    "Lengths in chords, LE at (0,0), TE at (1,0); angles in degrees to the chord line; "
+    "Cp = 1 - (V/Vinf)^2; Cm about the quarter chord, nose-up positive."
+)
+
+
+def _f(v) -> float | None:
+    v = float(v)
+    return v if math.isfinite(v) else None
+
+
+def evaluation_record(ev: Evaluation, i: int = 0, name: str | None = None) -> dict:
+    """Figures of candidate ``i`` as a JSON-ready dict (degrees, NaN → None)."""
+    deg = math.degrees
+    st = Status(int(ev.status[i]))
+    ok = st == Status.OK
+
+    def angle(v):
+        v = _f(v)
+        return None if v is None else deg(v)
+
+    cp_min = _f(ev.cp_min[i])
+    rec = {
+        "name": name,
+        "status": st.label,
+        "status_text": describe(st),
+        "cl": _f(ev.cl[i]),
+        "alpha_deg": angle(ev.alpha[i]),
+        "alpha_zero_lift_deg": angle(ev.alpha_zero_lift[i]),
+        "lift_slope_per_deg": None if not ok else _f(ev.lift_slope[i]) * math.pi / 180.0,
+        "cl_max_ideal": _f(ev.cl_max_ideal[i]),
+        "cm_quarter_chord": _f(ev.cm_quarter_chord[i]),
+        "cp_min": cp_min,
+        "peak_suction": None if cp_min is None else -cp_min,
+        "cp_min_x": _f(ev.cp_min_x[i]),
+        "cp_min_surface": ("upper" if ev.cp_min_upper[i] else "lower") if ok else None,
+        "thickness": _f(ev.thickness[i]),
+        "thickness_x": _f(ev.thickness_x[i]),
+        "camber": _f(ev.camber[i]),
+        "camber_x": _f(ev.camber_x[i]),
+        "le_radius": _f(ev.le_radius[i]),
+        "te_angle_deg": angle(ev.te_angle[i]),
+        "area": _f(ev.area[i]),
+        "recovery_severity": _f(ev.severity[i]),
+        "thwaites_separation_x_upper": _f(ev.thwaites_sep_x_upper[i]),
+        "thwaites_separation_x_lower": _f(ev.thwaites_sep_x_lower[i]),
+        "thwaites_min_lambda": _f(ev.thwaites_min_lambda[i]),
+        "stratford_margin": _f(ev.stratford_margin[i]),
+        "stratford_separation_x_upper": _f(ev.stratford_sep_x_upper[i]),
+        "stratford_separation_x_lower": _f(ev.stratford_sep_x_lower[i]),
+        "conventions": CONVENTIONS,
+        "caution": CAUTION,
+    }
+    return rec
+
+
+def plural(n: int, word: str) -> str:
+    """``1 run``, ``2 runs``."""
+    return f"{n} {word}" if n == 1 else f"{n} {word}s"
+
+
+def format_number(v, digits: int = 4) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, str):
+        return v
+    return f"{v:.{digits}f}"
+
+
+_ROWS = (
+    ("Operating point", (
+        ("Cl", "cl", 4), ("angle of attack  [deg]", "alpha_deg", 3),
+        ("zero-lift angle  [deg]", "alpha_zero_lift_deg", 3),
+        ("lift slope  [1/deg]", "lift_slope_per_deg", 5),
+        ("max ideal Cl", "cl_max_ideal", 3), ("Cm c/4", "cm_quarter_chord", 5),
+    )),
+    ("Pressure", (
+        ("Cp min", "cp_min", 4), ("  at x/c", "cp_min_x", 4), ("  on surface", "cp_min_surface", 0),
+        ("recovery severity -(s/u)du/ds", "recovery_severity", 4),
+        ("Thwaites separation x/c, upper", "thwaites_separation_x_upper", 4),
+        ("Thwaites separation x/c, lower", "thwaites_separation_x_lower", 4),
+        ("Thwaites min lambda", "thwaites_min_lambda", 4),
+        ("Stratford margin (>= 1 separates)", "stratford_margin", 4),
+        ("Stratford separation x/c, upper", "stratford_separation_x_upper", 4),
+        ("Stratford separation x/c, lower", "stratford_separation_x_lower", 4),
+    )),
+    ("Shape", (
+        ("thickness t/c", "thickness", 5), ("  at x/c", "thickness_x", 4),
+        ("camber", "camber", 5), ("  at x/c", "camber_x", 4),
+        ("leading-edge radius", "le_radius", 5), ("trailing-edge angle  [deg]", "te_angle_deg", 2),
+        ("area  [chord^2]", "area", 5),
+    )),
+)
+
+
+def format_summary(rec: dict, proxies: tuple[str, ...] = ("severity",)) -> str:
+    """A plain-text summary of one evaluation record, in groups."""
+    skip = set()
+    if "thwaites" not in proxies:
+        skip |= {k for k in rec if k.startswith("thwaites")}
+    if "stratford" not in proxies:
+        skip |= {k for k in rec if k.startswith("stratford")}
+    if "severity" not in proxies:
+        skip.add("recovery_severity")
+    title = f"foilmap | {rec['name'] or 'section'} | status: {rec['status']}"
+    out = [title, "=" * len(title)]
+    for group, rows in _ROWS:
+        out.append(f"{group}")
+        for label, key, digits in rows:
+            if key in skip:
+                continue
+            out.append(f"  {label:<36s} {format_number(rec[key], digits):>12s}")
+    out.append("")
+    out.append(CONVENTIONS)
+    out.append(CAUTION)
+    return "\n".join(out)
+
+
+def surface_table_csv(zc: np.ndarray, upper: np.ndarray, q: np.ndarray, name: str) -> str:
+    """CSV text of one surface distribution: columns x, y, surface, cp, q."""
+    lines = [
+        f"# foilmap surface distribution of {name}",
+        f"# {CONVENTIONS}",
+        f"# {CAUTION}",
+        "x,y,surface,cp,q",
+    ]
+    cp = 1.0 - q * q
+    for z, u, c, s in zip(zc, upper, cp, q):
+        lines.append(f"{z.real:.10f},{z.imag:.10f},{'upper' if u else 'lower'},{c:.10f},{s:.10f}")
+    return "\n".join(lines) + "\n"
+
+
+def xy_lines(x: np.ndarray, y: np.ndarray) -> str:
+    """Two columns to eight decimals, with no "-0.00000000" for round-off below the last digit."""
+    x = np.where(np.abs(x) < 5e-9, 0.0, x)
+    y = np.where(np.abs(y) < 5e-9, 0.0, y)
+    return "\n".join(f"{a: .8f} {b: .8f}" for a, b in zip(x, y))
+
+
+def coordinates_text(zc: np.ndarray, name: str) -> str:
+    """Two-column coordinates: one name line, then x y from the TE over the upper surface."""
+    head = f"{name}  (foilmap ideal-flow screening section; verify by viscous analysis and tests)"
+    return head + "\n" + xy_lines(zc.real, zc.imag) + "\n"

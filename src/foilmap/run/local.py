@@ -1,0 +1,225 @@
+"""The local engine: runs of a study in spawned worker processes on this machine.
+
+:func:`run_study` prepares the study folder (:class:`~foilmap.store.folder.StudyFolder`),
+hands every unfinished run to an engine (this machine's process pool, or a Dask cluster through
+:mod:`foilmap.run.cluster`), keeps the index and the progress as runs report, and on the first
+Ctrl-C or SIGTERM commits every run, marks the unfinished ones interrupted and leaves no process
+behind.  Re-running a study skips complete runs and resumes unfinished ones from their
+checkpoints.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import os
+import signal
+import threading
+import time
+from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from pathlib import Path
+
+from foilmap.design.results import RunState
+from foilmap.design.study import RunSpec, Study
+from foilmap.errors import InputError
+from foilmap.run.single import init_worker, worker
+from foilmap.store.folder import INDEXED, StudyFolder
+
+__all__ = ["run_study", "ABORT_GRACE"]
+
+#: seconds an interrupted study gives its workers to commit before they are killed
+ABORT_GRACE = 20.0
+
+
+# --- the local process pool --------------------------------------------------------------------
+
+
+def _todo(folder: StudyFolder, states: dict) -> list[RunSpec]:
+    todo = []
+    for r in folder.study.runs():
+        if folder.is_complete(r.run_id):
+            s = folder.summary(r.run_id)
+            states[r.run_id] = {k: s[k] for k in INDEXED if s.get(k) is not None}
+        else:
+            todo.append(r)
+    return todo
+
+
+_BLAS_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+class _single_threaded_kernels:
+    """Kernels single-threaded in the workers started inside this block: parallelism is across
+    runs, and the bits do not depend on how many BLAS threads a machine offers.  Spawned workers
+    inherit the environment at their start; the caller's environment is restored after."""
+
+    def __enter__(self):
+        self._saved = {v: os.environ.get(v) for v in _BLAS_VARS}
+        for v in _BLAS_VARS:
+            os.environ[v] = "1"
+
+    def __exit__(self, *exc):
+        for v, old in self._saved.items():
+            if old is None:
+                os.environ.pop(v, None)
+            else:
+                os.environ[v] = old
+        return False
+
+
+def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
+              progress=None, engine: str | None = None, scheduler: str | None = None
+              ) -> list[dict]:
+    """Run every unfinished run of a study; returns the summaries of the runs run now.
+
+    ``engine`` is ``"local"`` (a process pool of ``workers`` on this machine) or ``"dask"`` (a
+    Dask cluster at ``scheduler``, or a LocalCluster of ``workers`` when no address is given).
+    The same study and seeds give the same logs on every engine.  What is not given comes
+    from the study's ``[engine]`` table.
+    """
+    engine = engine or study.engine["kind"]
+    scheduler = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
+    workers = workers or study.engine["workers"] or None
+    if scheduler and engine != "dask":
+        raise InputError("a scheduler address needs the dask engine (--engine dask, or "
+                         "kind = \"dask\" in [engine])")
+    out = Path(out)
+    # a budget set on the study object is recorded like --budget, so that resume keeps it
+    folder, study = StudyFolder.prepare(study, out,
+                                        budget if budget is not None else study.budget)
+    runs = study.runs()
+    workers = max(1, min(workers or os.cpu_count() or 1, len(runs)))
+    states: dict[str, dict] = {}
+    todo = _todo(folder, states)
+    folder.write_index(states)
+    if progress is not None:
+        progress.total_runs = len(runs)
+        progress.done = len(runs) - len(todo)
+    if not todo:
+        return []
+    from foilmap.section import _compiled
+
+    _compiled.warm_up()  # workers then load the compiled kernel from the cache
+    args = (study,)
+    if engine not in ("local", "dask"):
+        raise InputError(f"engine {engine!r} is not one of: local, dask")
+    with _single_threaded_kernels():  # a LocalCluster starts its workers here
+        if engine == "dask":
+            from foilmap.run.cluster import DaskBackend
+
+            backend = DaskBackend(workers, scheduler, out)
+        else:
+            backend = _LocalBackend(workers)
+    return _drive(backend, folder, todo, args, states, progress)
+
+
+class _LocalBackend:
+    """The default engine: spawned worker processes on this machine."""
+
+    def __init__(self, workers: int):
+        ctx = mp.get_context("spawn")
+        self.queue = ctx.Queue()
+        self.pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx,
+                                        initializer=init_worker, initargs=(self.queue,))
+
+    def submit(self, args, run_id: str, out: Path):
+        with _single_threaded_kernels():  # the pool starts its workers on submission
+            return self.pool.submit(worker, *args, run_id, str(out))
+
+    def wait(self, pending, timeout: float):
+        return wait(pending, timeout=timeout, return_when=FIRST_COMPLETED)
+
+    def result(self, fut):
+        return fut.result()
+
+    def messages(self):
+        while True:
+            try:
+                yield self.queue.get_nowait()
+            except Exception:
+                return
+
+    def abort(self) -> None:
+        """Stop every worker: SIGTERM makes a worker commit its run at the end of the current
+        generation and leave; one that has not left after :data:`ABORT_GRACE` seconds is
+        killed (its run then resumes from its last commit)."""
+        procs = list((getattr(self.pool, "_processes", None) or {}).values())
+        for p in procs:
+            p.terminate()
+        deadline = time.monotonic() + ABORT_GRACE
+        for p in procs:
+            p.join(timeout=max(0.0, deadline - time.monotonic()))
+        for p in procs:
+            if p.is_alive():
+                p.kill()
+                p.join(timeout=5.0)
+        self.pool.shutdown(wait=False, cancel_futures=True)
+        self._aborted = True
+
+    def close(self) -> None:
+        if not getattr(self, "_aborted", False):
+            self.pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[dict]:
+    """Submit every run, collect them as they complete, keep the index and the progress."""
+    summaries = []
+    try:
+        futures = {backend.submit(args, r.run_id, folder.path): r for r in todo}
+        for r in todo:
+            states[r.run_id] = {"state": RunState.QUEUED.value}
+        pending = set(futures)
+        while pending:
+            done, pending = backend.wait(pending, 0.5)
+            if _drain(backend.messages(), progress, states):
+                folder.write_index(states)  # live status sees the run as running
+            for fut in done:
+                r = futures.pop(fut)
+                try:
+                    s = backend.result(fut)
+                except Exception as exc:  # the worker process itself died, too often
+                    s = {"run": r.run_id, "state": RunState.FAILED.value,
+                         "error": f"{type(exc).__name__}: {exc}"}
+                summaries.append(s)
+                states[r.run_id] = {k: s.get(k) for k in INDEXED + ("error",)
+                                    if s.get(k) is not None}
+                if progress is not None:
+                    progress.run_ended(r.run_id, s["state"], s.get("best"), s.get("error"), s)
+                folder.write_index(states)
+        _drain(backend.messages(), progress, states)
+    except BaseException:
+        # an interrupt (Ctrl-C, SIGTERM) or an engine failure: a second signal must not break
+        # the shutdown, which commits every run and leaves no process behind
+        old = {}
+        if threading.current_thread() is threading.main_thread():
+            old = {sig: signal.signal(sig, signal.SIG_IGN)
+                   for sig in (signal.SIGINT, signal.SIGTERM)}
+        try:
+            for st in states.values():
+                if st.get("state") in (RunState.QUEUED.value, RunState.RUNNING.value):
+                    st["state"] = RunState.INTERRUPTED.value
+            backend.abort()
+            folder.write_index(states)
+        finally:
+            for sig, handler in old.items():
+                signal.signal(sig, handler)
+        raise
+    finally:
+        backend.close()
+        if progress is not None:
+            progress.close()
+    folder.write_index(states)
+    return summaries
+
+
+def _drain(messages, progress, states) -> bool:
+    """Take the workers' progress messages; True when a run has just started running."""
+    started = False
+    for msg in messages:
+        st = states.setdefault(msg["run"], {})
+        if st.get("state") not in (RunState.COMPLETE.value, RunState.FAILED.value,
+                                 RunState.RUNNING.value):  # not a late message
+            st["state"] = RunState.RUNNING.value
+            started = True
+        if progress is not None:
+            progress.update(msg)
+    return started

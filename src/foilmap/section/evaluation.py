@@ -1,0 +1,367 @@
+"""Full evaluation of a batch of sections: map, validity, flow, peak suction, moment, geometry
+and the recovery proxies, in one vectorised pass.
+
+This is the kernel a search calls once per generation; :func:`evaluate` returns one
+:class:`Evaluation` whose arrays all have shape (B,).  Invalid candidates get a status code and
+NaN figures; nothing here raises for a bad shape.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+import numpy as np
+
+from foilmap.section import _compiled
+from foilmap.section.conformal import (
+    DEFAULT_CRITICAL_MARGIN,
+    DEFAULT_SINGULAR_MARGIN,
+    CircleGrid,
+    SectionSet,
+    map_at,
+    map_on_grid,
+)
+from foilmap.section.flow import (
+    FlowState,
+    flow_at_alpha,
+    flow_at_cl,
+    max_ideal_cl,
+    moment_quarter_chord,
+    peak_suction,
+    surface_speed,
+    zero_lift_angle,
+)
+from foilmap.section.geometry import (
+    ChordFrame,
+    SurfaceSplit,
+    chord_frame,
+    coordinates,
+    section_geometry,
+    split_surfaces,
+)
+from foilmap.section.proxies import recovery_severity, stratford, thwaites
+from foilmap.section.status import Status
+from foilmap.section.surfaces import surfaces_from_stagnation
+
+__all__ = [
+    "Evaluation",
+    "Analysis",
+    "evaluate",
+    "analyse",
+    "surface_distribution",
+    "speed_at_stations", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
+
+#: circle-plane samples per section in searches (peak suction is refined beyond the grid)
+DEFAULT_POINTS = 256
+#: the proxies stop at this chord station: the ideal flow's stagnation at a finite-angle trailing
+#: edge is removed in real flow by the boundary layer's displacement (common practice in
+#: inviscid screening), and every gradient proxy diverges there
+DEFAULT_PROXY_END = 0.9
+#: speed ratio a real trailing-edge flow recovers to, q/V∞ = 0.95 (Cp_TE ≈ 0.1: common practice
+#: for attached sections, value from memory); the proxies charge any recovery still owed at
+#: ``proxy_end`` down to it, so that a search cannot hide a recovery behind the end station
+TRAILING_EDGE_SPEED = 0.95
+#: proxy names accepted by :func:`evaluate`
+PROXIES = ("severity", "thwaites", "stratford")
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Figures of a batch of sections at one operating point, arrays of shape (B,).
+
+    Angles are in radians here (the CLI and files convert to degrees); lengths in chords;
+    Cm about the quarter chord, nose-up positive.  Proxy fields are NaN when not requested.
+    """
+
+    status: np.ndarray
+    cl: np.ndarray
+    alpha: np.ndarray
+    alpha_zero_lift: np.ndarray
+    lift_slope: np.ndarray
+    cl_max_ideal: np.ndarray
+    cm_quarter_chord: np.ndarray
+    cp_min: np.ndarray
+    cp_min_x: np.ndarray
+    cp_min_upper: np.ndarray  # True where the peak suction is on the upper surface
+    thickness: np.ndarray
+    thickness_x: np.ndarray
+    camber: np.ndarray
+    camber_x: np.ndarray
+    le_radius: np.ndarray
+    te_angle: np.ndarray
+    area: np.ndarray
+    severity: np.ndarray
+    thwaites_sep_x_upper: np.ndarray
+    thwaites_sep_x_lower: np.ndarray
+    thwaites_min_lambda: np.ndarray
+    stratford_margin: np.ndarray
+    stratford_sep_x_upper: np.ndarray
+    stratford_sep_x_lower: np.ndarray
+
+    def __len__(self) -> int:
+        return self.status.shape[0]
+
+    @property
+    def ok(self) -> np.ndarray:
+        return self.status == Status.OK
+
+    @classmethod
+    def from_figures(cls, status: np.ndarray, figures: np.ndarray) -> "Evaluation":
+        """From the compiled kernel's output: status (B,) and figures (B, F) in the order of
+        :data:`foilmap.section._compiled.FIGURES`."""
+        from foilmap.section._compiled import FIGURES
+
+        cols = {name: figures[:, i].copy() for i, name in enumerate(FIGURES)}
+        cols["cp_min_upper"] = cols["cp_min_upper"] == 1.0
+        return cls(status=status.astype(np.int8), **cols)
+
+    def row(self, i: int) -> dict:
+        """Figures of candidate ``i`` as a dict of Python scalars (NaN → None)."""
+        out = {}
+        for f in fields(self):
+            v = getattr(self, f.name)[i]
+            if f.name == "status":
+                out[f.name] = Status(int(v)).label
+            elif v.dtype == bool:
+                out[f.name] = bool(v)
+            else:
+                v = float(v)
+                out[f.name] = v if np.isfinite(v) else None
+        return out
+
+
+def _x_at(surface, s_query: np.ndarray) -> np.ndarray:
+    """Chord station at arc length ``s_query`` (B,) along a surface (NaN passes through; past
+    the last sample, the trailing edge x = 1)."""
+    nb = s_query.shape[0]
+    r = np.arange(nb)
+    reach = surface.mask & (surface.s >= s_query[:, None])
+    j = np.argmax(reach, axis=1)
+    jm = np.where(surface.mask[r, np.maximum(j - 1, 0)] & (j > 0), j - 1, j)
+    s0, s1 = surface.s[r, jm], surface.s[r, j]
+    x0, x1 = surface.x[r, jm], surface.x[r, j]
+    with np.errstate(all="ignore"):
+        frac = np.where(s1 > s0, (s_query - s0) / (s1 - s0), 0.0)
+    x = np.where(reach.any(axis=1), x0 + frac * (x1 - x0), 1.0)  # beyond the samples: the TE
+    return np.where(np.isfinite(s_query), x, np.nan)
+
+
+def evaluate(sections: SectionSet, **kwargs) -> Evaluation:
+    """Evaluate a batch of sections at a target Cl or at an angle of attack.
+
+    Keyword arguments as :func:`analyse`; returns only the figures.
+    """
+    return analyse(sections, **kwargs).evaluation
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """An evaluation together with the state it was computed from, for tables and plots."""
+
+    sections: SectionSet
+    evaluation: Evaluation
+    frame: ChordFrame
+    flow: FlowState
+    split: SurfaceSplit
+    grid: CircleGrid | None = None
+    map_values: object = None
+
+    def peak_suction_at(self, cl) -> tuple[np.ndarray, np.ndarray]:
+        """Peak suction −Cp_min and status at another lift coefficient, reusing the map.
+
+        The geometry and the map do not depend on incidence, so only the flow and the refined
+        peak are computed: returns ``(peak_suction, status)``, shapes (B,); NaN and
+        ABOVE_MAX_LIFT where the section cannot reach ``cl``, and the original status where
+        the section itself is invalid.
+        """
+        fl = flow_at_cl(self.sections, self.frame, cl)
+        status = np.where(self.evaluation.status == Status.OK, fl.status,
+                          self.evaluation.status).astype(np.int8)
+        with np.errstate(all="ignore"):
+            q_pk, _ = peak_suction(self.sections, _valid_only(fl, status), self.grid.points)
+        peak = np.where(status == Status.OK, q_pk**2 - 1.0, np.nan)
+        return peak, status
+
+
+def analyse(
+    sections: SectionSet,
+    *,
+    cl=None,
+    alpha=None,
+    points: int = DEFAULT_POINTS,
+    proxies: tuple[str, ...] = ("severity",),
+    reynolds: float | None = None,
+    proxy_end: float = DEFAULT_PROXY_END,
+    critical_margin: float = DEFAULT_CRITICAL_MARGIN,
+    singular_margin: float = DEFAULT_SINGULAR_MARGIN,
+) -> Analysis:
+    """Evaluate a batch of sections at a target Cl or at an angle of attack.
+
+    Parameters
+    ----------
+    sections : SectionSet
+        B candidates with N coefficients each.
+    cl : float or ndarray (B,), optional
+        Target lift coefficient, met exactly by the closed-form angle.
+    alpha : float or ndarray (B,), optional
+        Angle of attack to the chord line in radians (exactly one of ``cl`` and ``alpha``).
+    points : int
+        Circle-plane samples per section.
+    proxies : tuple of str
+        Recovery proxies to compute, from :data:`PROXIES`; ``stratford`` needs ``reynolds``.
+    reynolds : float, optional
+        Chord Reynolds number for Stratford's criterion.
+    proxy_end : float
+        Chord station where the proxies stop (see :data:`DEFAULT_PROXY_END`).
+    critical_margin, singular_margin : float
+        δ₁ and δ₂ of the validity checks (docs/method.md, "Validity").
+    """
+    if (cl is None) == (alpha is None):
+        raise ValueError("give exactly one of cl and alpha")
+    unknown = set(proxies) - set(PROXIES)
+    if unknown:
+        raise ValueError(f"unknown proxies {sorted(unknown)}; allowed: {', '.join(PROXIES)}")
+    if "stratford" in proxies and reynolds is None:
+        raise ValueError("the stratford proxy needs a Reynolds number")
+    nb = len(sections)
+    grid = CircleGrid.get(points, max(sections.n_coefficients, 1))
+    with np.errstate(all="ignore"):
+        # validity certified between samples (the compiled checks: critical points, star shape,
+        # the second singular point, a simple contour, single-valued surfaces)
+        status = _compiled.validity_batch(np.ascontiguousarray(sections.coefficients),
+                                          sections.te_angle, points,
+                                          1.0 - critical_margin, singular_margin)
+        mv = map_on_grid(sections, grid)
+        frame = chord_frame(sections, mv, grid)
+        zc = frame.to_chord(mv.z)
+        split = split_surfaces(zc, grid.phi, frame.phi_le)
+        geom = section_geometry(sections, mv, grid, frame, split, zc=zc)
+        flow = flow_at_cl(sections, frame, cl) if cl is not None else flow_at_alpha(
+            sections, frame, alpha
+        )
+        status = np.where(status == Status.OK, flow.status, status).astype(np.int8)
+        q = surface_speed(flow, mv, grid)
+        q_pk, phi_pk = peak_suction(
+            sections, _valid_only(flow, status), points)
+        phi_pk = np.where(np.isfinite(phi_pk), phi_pk, 0.0)
+        zpk = frame.to_chord(map_at(sections, np.exp(1j * phi_pk)[:, None]).z)[:, 0]
+        cm = moment_quarter_chord(sections, frame, flow)
+        nan = np.full(nb, np.nan)
+        severity = nan.copy()
+        th_up, th_lo, th_min = nan.copy(), nan.copy(), nan.copy()
+        st_m, st_up, st_lo = nan.copy(), nan.copy(), nan.copy()
+        if proxies:
+            upper, lower = surfaces_from_stagnation(flow, mv, grid, frame, q)
+            masks = [sf.until(proxy_end) for sf in (upper, lower)]
+            ends = [sf.end_state(mk) for sf, mk in zip((upper, lower), masks)]
+            # Kutta: both surfaces reach one trailing-edge pressure, and in real flow that is
+            # slightly above free stream: the recovery still owed at the end station is charged
+            # to reach the lowest of the two end speeds and TRAILING_EDGE_SPEED
+            u_te = np.minimum(np.minimum(ends[0][1], ends[1][1]), TRAILING_EDGE_SPEED)
+            closing = [None, None] if proxy_end >= 0.999 else [
+                (e[0], e[1], sf.s_te, u_te) for e, sf in zip(ends, (upper, lower))]
+            if "severity" in proxies:
+                severity = np.maximum(
+                    *(recovery_severity(sf.s, sf.u, sf.du_ds, mk, cl_)
+                      for sf, mk, cl_ in zip((upper, lower), masks, closing))
+                )
+            if "thwaites" in proxies:
+                tu, tl = (
+                    thwaites(sf.s, sf.u, sf.du_ds, mk, sf.integral0)
+                    for sf, mk in zip((upper, lower), masks)
+                )
+                th_up = _x_at(upper, tu.separation_s)
+                th_lo = _x_at(lower, tl.separation_s)
+                th_min = np.fmin(tu.min_lambda, tl.min_lambda)
+            if "stratford" in proxies:
+                su, sl = (
+                    stratford(sf.s, sf.u, sf.du_ds, mk, float(reynolds), cl_)
+                    for sf, mk, cl_ in zip((upper, lower), masks, closing)
+                )
+                st_m = np.fmax(su.margin, sl.margin)
+                st_up = _x_at(upper, su.separation_s)
+                st_lo = _x_at(lower, sl.separation_s)
+        cp_min = 1.0 - q_pk**2
+        values = dict(
+            cl=flow.cl,
+            alpha=flow.alpha,
+            alpha_zero_lift=zero_lift_angle(sections, frame),
+            lift_slope=flow.lift_slope,
+            cl_max_ideal=max_ideal_cl(sections, frame),
+            cm_quarter_chord=cm,
+            cp_min=cp_min,
+            cp_min_x=zpk.real,
+            thickness=geom.thickness,
+            thickness_x=geom.thickness_x,
+            camber=geom.camber,
+            camber_x=geom.camber_x,
+            le_radius=geom.le_radius,
+            te_angle=sections.te_angle.copy(),
+            area=geom.area,
+            severity=severity,
+            thwaites_sep_x_upper=th_up,
+            thwaites_sep_x_lower=th_lo,
+            thwaites_min_lambda=th_min,
+            stratford_margin=st_m,
+            stratford_sep_x_upper=st_up,
+            stratford_sep_x_lower=st_lo,
+        )
+        core = ("cl", "alpha", "cm_quarter_chord", "cp_min", "thickness", "le_radius")
+        finite = np.all([np.isfinite(values[n]) for n in core], axis=0)
+        status = np.where((status == Status.OK) & ~finite, Status.NON_FINITE, status)
+        bad = status != Status.OK
+        for name, v in values.items():
+            v = np.array(v, dtype=float)
+            v[bad] = np.nan
+            values[name] = v
+    upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
+    ev = Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
+    return Analysis(sections, ev, frame, flow, split, grid, mv)
+
+
+def _valid_only(flow: FlowState, status: np.ndarray) -> FlowState:
+    """The flow with its angle NaN where the candidate is invalid (no certification spent)."""
+    from dataclasses import replace
+
+    return replace(flow, alpha_circle=np.where(status == Status.OK, flow.alpha_circle, np.nan))
+
+
+def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarray:
+    """Speed ratio q = V/V∞ at chord stations ``x`` (M,) on one surface, shape (B, M).
+
+    The points are exact contour points (Newton on the map), so the speed is exact there.
+    """
+    from foilmap.section.geometry import exact_points_at_x
+
+    if surface not in ("upper", "lower"):
+        raise ValueError(f"surface must be 'upper' or 'lower', not {surface!r}")
+    x = np.asarray(x, dtype=float)
+    keys = -x if surface == "upper" else x
+    sec, fl = analysis.sections, analysis.flow
+    _, phi = exact_points_at_x(sec, analysis.frame, analysis.split, keys, return_phi=True)
+    m = map_at(sec, np.exp(1j * phi))
+    ap = fl.alpha_circle[:, None]
+    return 2.0 * fl.speed[:, None] * np.abs(np.sin(phi - ap) + np.sin(ap)) / np.abs(m.dz)
+
+
+def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "cosine"):
+    """Surface points with their speed ratio, from the TE over the upper surface and back.
+
+    Returns ``(zc, upper, q)``, shapes (B, points): chord-frame points (as in
+    :func:`~foilmap.section.geometry.coordinates`), True on the upper surface, and q = V/V∞
+    (Cp = 1 − q²).  At the trailing edge q is 0 for a finite angle (a stagnation point) and the
+    common limit of both surfaces for a cusp.
+    """
+    sec, frame, flow = analysis.sections, analysis.frame, analysis.flow
+    zc, phi = coordinates(sec, frame, analysis.split, points, spacing, return_phi=True)
+    te = np.zeros_like(phi, dtype=bool)
+    te[:, 0] = te[:, -1] = True
+    cusp = sec.te_angle[:, None] == 0.0
+    phi_eval = np.where(te, np.where(np.arange(points)[None, :] == 0, 1e-6, -1e-6), phi)
+    m = map_at(sec, np.exp(1j * phi_eval))
+    ap = flow.alpha_circle[:, None]
+    w_abs = 2.0 * flow.speed[:, None] * np.abs(np.sin(phi_eval - ap) + np.sin(ap))
+    q = w_abs / np.abs(m.dz)
+    q = np.where(te & ~cusp, 0.0, q)
+    upper = phi <= frame.phi_le[:, None]  # the LE row counts as upper
+    return zc, upper, q
