@@ -50,6 +50,13 @@ def test_export_of_a_section_re_evaluates(tmp_path, section_file):
     np.testing.assert_allclose(cp, 1 - q**2, atol=1e-7)
     assert cp.min() == pytest.approx(side["cp_min"], abs=5e-3)
     assert {t["surface"] for t in table} == {"upper", "lower"}
+    # the trailing-edge zone is marked, its unbounded gradients left out; elsewhere all finite
+    zone = [t for t in table if t["te_zone"] == "1"]
+    rest = [t for t in table if t["te_zone"] == "0"]
+    assert zone and rest and len(zone) + len(rest) == len(table)
+    assert all(float(t["x"]) > 0.99 and t["dq_ds"] == t["thwaites_lambda"] == "" for t in zone)
+    lam = np.array([float(t["thwaites_lambda"]) for t in rest])
+    assert np.all(np.isfinite(lam)) and np.max(np.abs(lam)) < 5.0
 
 
 def test_trailing_edge_thickness_blend(tmp_path, section_file):

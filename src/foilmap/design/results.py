@@ -76,7 +76,7 @@ class RunResult:
     state : :class:`RunState`
     x : best feasible search vector, or None
     section : the best feasible design as a one-section :class:`SectionSet` (straight into
-        :func:`foilmap.section.evaluation`), or None
+        :func:`foilmap.evaluate`), or None
     fun : its weighted objective (the value the search minimised), or None
     objectives, constraints : its objective values and constraint values (g ≤ 0 feasible) by
         name, or None

@@ -38,6 +38,8 @@ from foilmap.store.sectionfile import write_text_atomic
 __all__ = ["Design", "export_designs", "resample", "add_te_thickness", "SPACINGS"]
 
 SPACINGS = ("cosine", "map", "curvature")
+#: surface-table rows beyond this chord station are the trailing-edge zone (see the table)
+TE_ZONE_X = 0.99
 
 
 @dataclass
@@ -120,25 +122,22 @@ def add_te_thickness(xy: np.ndarray, thickness: float) -> tuple[np.ndarray, floa
 
 def _surface_table(analysis) -> str:
     """Distributions along both surfaces from the stagnation point, as CSV text."""
-    from foilmap.section.conformal import CircleGrid, map_on_grid
-    from foilmap.section.flow import surface_speed
+    from foilmap.section.evaluation import surfaces_on_grid
     from foilmap.section.proxies import thwaites
-    from foilmap.section.surfaces import surfaces_from_stagnation
 
-    sec = analysis.sections
-    grid = CircleGrid.get(512, max(sec.n_coefficients, 1))
-    mv = map_on_grid(sec, grid)
-    q = surface_speed(analysis.flow, mv, grid)
     buf = io.StringIO()
     buf.write(f"# foilmap surface distributions at Cl {analysis.evaluation.cl[0]:.4f}, "
               f"alpha {math.degrees(analysis.evaluation.alpha[0]):.4f} deg\n")
     buf.write(f"# {CONVENTIONS}\n# s: arc length from the stagnation point (chords); "
               "falkner_skan_m = (s/q) dq/ds; thwaites_lambda Reynolds-free\n")
+    buf.write(f"# te_zone = 1: within {1 - TE_ZONE_X:g} chord of the trailing edge, where the "
+              "ideal flow stagnates at a finite-angle edge and dq/ds, m and lambda are left "
+              "empty (they grow without bound there and mean nothing for a real layer)\n")
     buf.write(f"# {CAUTION}\n")
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(["x", "y", "surface", "cp", "q", "s", "dq_ds", "falkner_skan_m",
-                "thwaites_lambda"])
-    upper, lower = surfaces_from_stagnation(analysis.flow, mv, grid, analysis.frame, q)
+                "thwaites_lambda", "te_zone"])
+    upper, lower = surfaces_on_grid(analysis, 512)
     for name, sf, rev in (("upper", upper, True), ("lower", lower, False)):
         lam = thwaites(sf.s, sf.u, sf.du_ds, sf.mask, sf.integral0).lam[0]
         idx = np.flatnonzero(sf.mask[0])
@@ -147,9 +146,12 @@ def _surface_table(analysis) -> str:
         for i in idx:
             u, s = sf.u[0, i], sf.s[0, i]
             m = s / u * sf.du_ds[0, i] if u > 0 else float("nan")
-            w.writerow([f"{sf.x[0, i]:.8f}", f"{sf.y[0, i]:.8f}", name, f"{1 - u * u:.8f}",
-                        f"{u:.8f}", f"{s:.8f}", f"{sf.du_ds[0, i]:.6e}", f"{m:.6e}",
-                        f"{lam[i]:.6e}"])
+            row = [f"{sf.x[0, i]:.8f}", f"{sf.y[0, i]:.8f}", name, f"{1 - u * u:.8f}",
+                   f"{u:.8f}", f"{s:.8f}"]
+            if sf.x[0, i] > TE_ZONE_X:
+                w.writerow(row + ["", "", "", 1])
+            else:
+                w.writerow(row + [f"{sf.du_ds[0, i]:.6e}", f"{m:.6e}", f"{lam[i]:.6e}", 0])
     return buf.getvalue()
 
 

@@ -8,7 +8,7 @@ NaN figures; nothing here raises for a bad shape.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -28,6 +28,7 @@ from foilmap.section.flow import (
     max_ideal_cl,
     moment_quarter_chord,
     peak_suction,
+    speed_on_circle,
     surface_speed,
     zero_lift_angle,
 )
@@ -49,7 +50,7 @@ __all__ = [
     "evaluate",
     "analyse",
     "surface_distribution",
-    "speed_at_stations", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
+    "speed_at_stations", "surfaces_on_grid", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
 
 #: circle-plane samples per section in searches (peak suction is refined beyond the grid)
 DEFAULT_POINTS = 256
@@ -114,20 +115,6 @@ class Evaluation:
         cols = {name: figures[:, i].copy() for i, name in enumerate(FIGURES)}
         cols["cp_min_upper"] = cols["cp_min_upper"] == 1.0
         return cls(status=status.astype(np.int8), **cols)
-
-    def row(self, i: int) -> dict:
-        """Figures of candidate ``i`` as a dict of Python scalars (NaN → None)."""
-        out = {}
-        for f in fields(self):
-            v = getattr(self, f.name)[i]
-            if f.name == "status":
-                out[f.name] = Status(int(v)).label
-            elif v.dtype == bool:
-                out[f.name] = bool(v)
-            else:
-                v = float(v)
-                out[f.name] = v if np.isfinite(v) else None
-        return out
 
 
 def _x_at(surface, s_query: np.ndarray) -> np.ndarray:
@@ -339,9 +326,7 @@ def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarr
     keys = -x if surface == "upper" else x
     sec, fl = analysis.sections, analysis.flow
     _, phi = exact_points_at_x(sec, analysis.frame, analysis.split, keys, return_phi=True)
-    m = map_at(sec, np.exp(1j * phi))
-    ap = fl.alpha_circle[:, None]
-    return 2.0 * fl.speed[:, None] * np.abs(np.sin(phi - ap) + np.sin(ap)) / np.abs(m.dz)
+    return speed_on_circle(fl, phi, map_at(sec, np.exp(1j * phi)).dz)
 
 
 def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "cosine"):
@@ -358,10 +343,18 @@ def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "
     te[:, 0] = te[:, -1] = True
     cusp = sec.te_angle[:, None] == 0.0
     phi_eval = np.where(te, np.where(np.arange(points)[None, :] == 0, 1e-6, -1e-6), phi)
-    m = map_at(sec, np.exp(1j * phi_eval))
-    ap = flow.alpha_circle[:, None]
-    w_abs = 2.0 * flow.speed[:, None] * np.abs(np.sin(phi_eval - ap) + np.sin(ap))
-    q = w_abs / np.abs(m.dz)
+    q = speed_on_circle(flow, phi_eval, map_at(sec, np.exp(1j * phi_eval)).dz)
     q = np.where(te & ~cusp, 0.0, q)
     upper = phi <= frame.phi_le[:, None]  # the LE row counts as upper
     return zc, upper, q
+
+
+def surfaces_on_grid(analysis: Analysis, points: int):
+    """Both surfaces from the stagnation point (:class:`~foilmap.section.surfaces.Surface`),
+    with the exact surface speed on a circle grid of ``points`` samples: the input of the
+    boundary-layer screening and of the exported surface tables."""
+    sec = analysis.sections
+    grid = CircleGrid.get(points, max(sec.n_coefficients, 1))
+    mv = map_on_grid(sec, grid)
+    q = surface_speed(analysis.flow, mv, grid)
+    return surfaces_from_stagnation(analysis.flow, mv, grid, analysis.frame, q)

@@ -21,6 +21,7 @@ from foilmap.section.geometry import ChordFrame
 from foilmap.section.status import Status
 
 __all__ = [
+    "speed_on_circle",
     "FlowState",
     "flow_at_alpha",
     "flow_at_cl",
@@ -104,12 +105,19 @@ def zero_lift_angle(sections: SectionSet, frame: ChordFrame) -> np.ndarray:
     return sections.a0.imag - frame.gamma
 
 
+def speed_on_circle(flow: FlowState, phi: np.ndarray, dz: np.ndarray) -> np.ndarray:
+    """Surface speed ratio q = |w|/|z'| = 2U |sin(φ − α') + sin α'| / |z'(e^{iφ})|, shape (B, P),
+    at circle angles ``phi`` (B, P) or (P,) where the map's derivative is ``dz`` (B, P).
+
+    This is the one place the surface-speed formula is written; Cp = 1 − q².
+    """
+    ap = flow.alpha_circle[:, None]
+    return 2.0 * flow.speed[:, None] * np.abs(np.sin(phi - ap) + np.sin(ap)) / np.abs(dz)
+
+
 def surface_speed(flow: FlowState, mv: MapValues, grid: CircleGrid) -> np.ndarray:
-    """Surface speed ratio q = |w|/|z'| on the grid, shape (B, P); Cp = 1 − q²."""
-    ca = np.cos(flow.alpha_circle)[:, None]
-    sa = np.sin(flow.alpha_circle)[:, None]
-    w_abs = 2.0 * flow.speed[:, None] * np.abs(grid.sin * ca - grid.cos * sa + sa)
-    return w_abs / np.abs(mv.dz)
+    """Surface speed ratio q on the grid, shape (B, P) (see :func:`speed_on_circle`)."""
+    return speed_on_circle(flow, grid.phi, mv.dz)
 
 
 def speed_log_derivative(phi: np.ndarray, alpha_c: np.ndarray, q2: np.ndarray) -> np.ndarray:

@@ -226,15 +226,10 @@ def screen_analysis(analysis, reynolds: float, drag_station: float = DRAG_STATIO
 
     The surface speeds are the exact ones on a fine circle grid (``points``).
     """
-    from foilmap.section.conformal import CircleGrid, map_on_grid
-    from foilmap.section.flow import surface_speed
-    from foilmap.section.surfaces import surfaces_from_stagnation
+    from foilmap.section.evaluation import surfaces_on_grid
 
     sec = analysis.sections
-    grid = CircleGrid.get(points, max(sec.n_coefficients, 1))
-    mv = map_on_grid(sec, grid)
-    q = surface_speed(analysis.flow, mv, grid)
-    upper, lower = surfaces_from_stagnation(analysis.flow, mv, grid, analysis.frame, q)
+    upper, lower = surfaces_on_grid(analysis, points)
     out = {k: {} for k in ("xt", "bysep", "xls", "xts", "th", "h")}
     cd = np.zeros(len(sec))
     for name, sf in (("upper", upper), ("lower", lower)):
