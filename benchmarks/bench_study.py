@@ -45,7 +45,7 @@ reynolds = 2.0e6
 peak_suction = 1.0
 stratford_margin = 0.2
 [constraints]
-min_thickness = 0.14
+thickness = [0.14, 1.0]
 min_le_radius = 0.01
 cm = [-0.02, 0.02]
 [search]

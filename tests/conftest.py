@@ -32,7 +32,7 @@ def cli(*args, cwd=None, timeout=300):
 
 
 def small_study(name: str, seeds, evals: int, objectives: str = "peak_suction = 1.0",
-                constraints: str = "min_thickness = 0.10", extra: str = "") -> str:
+                constraints: str = "thickness = [0.10, 1.0]", extra: str = "") -> str:
     """Text of a small study of 4-coefficient sections at Cl 0.5 (test data, invented)."""
     return f"""
 # test study (invented data)

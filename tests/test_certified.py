@@ -170,7 +170,7 @@ def test_a_search_that_finds_a_needle_nose_says_so(tmp_path):
     sys.path.insert(0, str(__import__("pathlib").Path(__file__).parent))
     from conftest import cli, small_study
 
-    text = small_study("needle", [1], 2500, constraints="min_thickness = 0.12",
+    text = small_study("needle", [1], 2500, constraints="thickness = [0.12, 1.0]",
                        extra="").replace("coefficients = 4", "coefficients = 6\n"
                                          "te_angle_deg = [4.0, 20.0]")
     study = tmp_path / "needle.toml"
@@ -180,7 +180,7 @@ def test_a_search_that_finds_a_needle_nose_says_so(tmp_path):
     warn = [line for line in r.stdout.splitlines() if line.startswith("warning:")]
     assert warn and "min_le_radius" in warn[0] and "leading-edge radius" in warn[0]
     # with the floor in place the warning is gone
-    text2 = text.replace("min_thickness = 0.12", "min_thickness = 0.12\nmin_le_radius = 0.004")
+    text2 = text.replace("thickness = [0.12, 1.0]", "thickness = [0.12, 1.0]\nmin_le_radius = 0.004")
     study.write_text(text2)
     r = cli("run", study, "--out", tmp_path / "out2", "--workers", "1")
     assert r.returncode == 0, r.stderr

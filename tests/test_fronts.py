@@ -130,7 +130,7 @@ def test_comocma_front_approaches_the_exact_sphere_front():
 
 MO_STUDY = small_study(
     "mo", [1, 2], 900, objectives="peak_suction = 1.0\nseverity = 1.0",
-    constraints="min_thickness = 0.10\nmin_le_radius = 0.006",
+    constraints="thickness = [0.10, 1.0]\nmin_le_radius = 0.006",
     extra='[fronts]\nreference_point = [2.0, 2.0]\n').replace(
     "[search]\n", '[search]\nmethod = "comocma"\nkernels = 6\n')
 

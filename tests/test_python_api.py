@@ -50,7 +50,7 @@ def test_result_objects_match_the_logs(tmp_path):
     assert ev.status[0] == 0
     # the logged objective is the certified peak suction of the section
     assert best.objectives["peak_suction"] == pytest.approx(-ev.cp_min[0], rel=1e-9)
-    assert best.constraints["min_thickness"] <= 0
+    assert best.constraints["thickness_low"] <= 0
     h = res.history(best.id)
     assert len(h) == best.generations and h["evaluations"][-1] == best.evaluations
     assert np.nanmin(h["best_f"]) == pytest.approx(best.fun)

@@ -40,10 +40,10 @@ cl_range = [0.4, 0.6]
 peak_suction = 1.0
 severity = 0.1
 [constraints]
-min_thickness = 0.10
+thickness = [0.10, 1.0]
 min_le_radius = 0.006
 cm = [-0.12, 0.0]
-min_thickness_at = [[0.9, 0.015]]
+station_thickness = [[0.9, 0.015]]
 [search]
 max_evaluations = 400
 restarts = 1
@@ -324,7 +324,7 @@ def test_a_study_with_no_feasible_design_says_so(tmp_path):
     from conftest import cli, small_study
 
     study = tmp_path / "s.toml"
-    study.write_text(small_study("none", [1], 120, constraints="min_thickness = 0.6"))
+    study.write_text(small_study("none", [1], 120, constraints="thickness = [0.6, 1.0]"))
     r = cli("run", study, "--out", tmp_path / "out", "--workers", "1")
     assert r.returncode == 0, r.stderr
     assert "no run of study none found a feasible design" in r.stdout

@@ -67,6 +67,69 @@ def _add_operating_point(p: argparse.ArgumentParser) -> None:
                    help="circle-plane samples (default 256; peak suction is refined beyond them)")
 
 
+def _add_conditions(p: argparse.ArgumentParser) -> None:
+    """Options of the flow conditions: Mach number and cavitation number."""
+    p.add_argument("--mach", type=_finite("Mach number", 0.0, 0.95), metavar="M",
+                   help="free-stream Mach number: Cp and peak suction corrected by the "
+                        "compressibility rule")
+    p.add_argument("--compressibility", choices=("karman-tsien", "prandtl-glauert"),
+                   default="karman-tsien",
+                   help="compressibility rule for --mach and the critical Mach number "
+                        "(default karman-tsien)")
+    p.add_argument("--sigma", type=_finite("cavitation number", 0.0, 1e6, open_lo=True),
+                   metavar="S", help="cavitation number (or give --speed, --depth, --water-temp)")
+    p.add_argument("--speed", type=_finite("speed", 0.0, 200.0, open_lo=True), metavar="M/S",
+                   help="speed through the water, m/s (with --depth and --water-temp: sigma)")
+    p.add_argument("--depth", type=_finite("depth", 0.0, 11000.0), metavar="M",
+                   help="depth of the section below the free surface, m")
+    p.add_argument("--water-temp", type=_finite("water temperature", 0.0, 40.0), metavar="DEGC",
+                   help="water temperature, degrees Celsius (0 to 40)")
+    p.add_argument("--water", choices=("fresh", "sea"), default="fresh",
+                   help="water density: fresh (by temperature) or sea (1025 kg/m3)")
+
+
+def _sigma(args) -> float | None:
+    """The cavitation number the options give, or None."""
+    parts = {"--speed": args.speed, "--depth": args.depth, "--water-temp": args.water_temp}
+    given = [k for k, v in parts.items() if v is not None]
+    if args.sigma is not None:
+        if given:
+            raise InputError(f"give --sigma or {', '.join(parts)}, not both ({given[0]} was "
+                             "also given)")
+        return args.sigma
+    if not given:
+        return None
+    missing = [k for k, v in parts.items() if v is None]
+    if missing:
+        raise InputError(f"the cavitation number from speed needs {', '.join(parts)}; "
+                         f"missing {', '.join(missing)}")
+    from foilmap.section.operating import cavitation_number
+
+    return float(cavitation_number(args.speed, args.depth, args.water_temp, args.water))
+
+
+def _condition_record(rec, an, args) -> dict:
+    """The operating-range figures of an evaluation: critical Mach number, and what --mach and
+    the cavitation options ask."""
+    from foilmap.section.operating import cl_range_below, compressible_cp, critical_mach
+
+    ev = an.evaluation
+    out = {"chord_line": "source" if rec.reference_le is not None else "own",
+           "critical_mach": float(critical_mach(ev.cp_min[0], args.compressibility)),
+           "compressibility_rule": args.compressibility}
+    if args.mach is not None:
+        cp = float(compressible_cp(ev.cp_min[0], args.mach, args.compressibility))
+        out.update({"mach": args.mach, "cp_min_compressible": cp,
+                    "peak_suction_compressible": -cp})
+    sigma = _sigma(args)
+    if sigma is not None:
+        rng = cl_range_below(rec.to_set(), sigma, reference_le=rec.reference_le)
+        out.update({"cavitation_number": sigma,
+                    "cavitation_margin": sigma + float(ev.cp_min[0]),
+                    "cavitation_free_cl": None if rng is None else list(rng)})
+    return out
+
+
 def _analyse(args, proxies=("severity",)):
     from foilmap.section.evaluation import analyse
     from foilmap.store.sectionfile import load_section
@@ -77,7 +140,7 @@ def _analyse(args, proxies=("severity",)):
     if re is not None and "stratford" not in proxies:
         proxies = tuple(proxies) + ("stratford",)
     an = analyse(rec.to_set(), points=args.points, proxies=proxies, reynolds=re,
-                 proxy_end=getattr(args, "proxy_end", 0.9), **kw)
+                 proxy_end=getattr(args, "proxy_end", 0.9), reference_le=rec.reference_le, **kw)
     return rec, an
 
 
@@ -92,6 +155,7 @@ def _check_ok(rec, an) -> None:
 
 def cmd_evaluate(args) -> int:
     from foilmap.report.text import (
+        display_values,
         evaluation_record,
         format_summary,
         surface_table_csv,
@@ -103,8 +167,10 @@ def cmd_evaluate(args) -> int:
     rec, an = _analyse(args, proxies)
     record = evaluation_record(an.evaluation, 0, rec.name)
     ok = int(an.evaluation.status[0]) == Status.OK
+    if ok:
+        record.update(_condition_record(rec, an, args))
     if args.json:
-        print(json.dumps(record, indent=2))
+        print(json.dumps(display_values(record), indent=2))
         if not ok:
             print(f"foilmap evaluate: section {rec.name!r}: {record['status_text']}",
                   file=sys.stderr)
@@ -153,8 +219,9 @@ def _png_target(output: str, command: str) -> Path:
     return out
 
 
-def _write_png(out: Path, draw) -> None:
-    """Draw into a temporary file and rename it into place: whole or not at all."""
+def _write_png(out: Path, draw, stream=None) -> None:
+    """Draw into a temporary file and rename it into place: whole or not at all.  The line
+    saying so goes to ``stream`` (standard error when standard output carries JSON)."""
     tmp = out.with_name(f".{out.stem}.part.png")
     try:
         draw(tmp)
@@ -162,7 +229,7 @@ def _write_png(out: Path, draw) -> None:
     finally:
         if tmp.exists():
             tmp.unlink()
-    print(f"plot written to {out}")
+    print(f"plot written to {out}", file=stream or sys.stdout)
 
 
 def cmd_plot(args) -> int:
@@ -252,6 +319,84 @@ def cmd_demo(args) -> int:
     return run_demo(Path(args.out), args.workers, _run_folder)
 
 
+def _range(kind: str, lo: float, hi: float, most: int = 2001):
+    """argparse type for A:B:STEP (inclusive of B when the steps land on it)."""
+
+    def parse(text: str):
+        parts = text.split(":")
+        try:
+            a, b, step = (float(v) for v in parts)
+        except ValueError:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r} is not START:STOP:STEP (three numbers)") from None
+        if not all(map(math.isfinite, (a, b, step))) or step <= 0 or b < a:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r}: needs START <= STOP and STEP > 0")
+        if a < lo or b > hi:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r} leaves the allowed {lo:g} to {hi:g}")
+        n = int(math.floor((b - a) / step + 1e-9)) + 1
+        if n > most:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r} has {n} steps; at most {most} are allowed")
+        return [a + i * step for i in range(n)]
+
+    return parse
+
+
+def cmd_sweep(args) -> int:
+    from foilmap.report.sweep import sweep_csv, sweep_figure, sweep_rows
+    from foilmap.report.text import CAUTION, display_values, format_number
+    from foilmap.section.operating import sweep
+    from foilmap.store.sectionfile import load_section, write_text_atomic
+
+    png = _png_target(args.output, "sweep") if args.output else None
+    rec = load_section(args.section)
+    sigma = _sigma(args)
+    kw = ({"alpha": [math.radians(a) for a in args.alpha]} if args.alpha is not None
+          else {"cl": args.cl})
+    res = sweep(rec.to_set(), mach=args.mach, rule=args.compressibility,
+                reference_le=rec.reference_le, **kw)
+    rows = sweep_rows(res, sigma)
+    if not any(r["cl"] is not None for r in rows):
+        raise InputError(f"sweep: section {rec.name!r} has no usable row in the range "
+                         f"(first row: {rows[0]['status']})")
+    if args.csv:
+        write_text_atomic(args.csv, sweep_csv(rows, rec.name))
+    if png is not None:
+        _write_png(png, lambda tmp: sweep_figure(rows, rec.name, sigma, args.mach)
+                   .savefig(tmp, dpi=120), sys.stderr if args.json else None)
+    if args.json:
+        out = {"name": rec.name, "chord_line": "source" if rec.reference_le is not None
+               else "own", "compressibility_rule": args.compressibility, "mach": args.mach,
+               "cavitation_number": sigma, "rows": rows, "caution": CAUTION}
+        print(json.dumps(display_values(out), indent=1))
+        return EXIT_OK
+    head = (f"{'alpha':>7} {'Cl':>8} {'Cm c/4':>8} {'peak up':>8} {'x':>6} {'peak lo':>8} "
+            f"{'x':>6} {'severity':>8} {'M crit':>7}")
+    print(f"foilmap sweep | {rec.name} | angles from the "
+          f"{'source' if rec.reference_le is not None else 'own'} chord line")
+    print(head)
+    print("-" * len(head))
+    for r in rows:
+        print(f"{format_number(r['alpha_deg'], 2):>7} {format_number(r['cl'], 4):>8} "
+              f"{format_number(r['cm_quarter_chord'], 4):>8} "
+              f"{format_number(r['peak_suction_upper'], 4):>8} "
+              f"{format_number(r['x_peak_upper'], 3):>6} "
+              f"{format_number(r['peak_suction_lower'], 4):>8} "
+              f"{format_number(r['x_peak_lower'], 3):>6} "
+              f"{format_number(r['recovery_severity'], 3):>8} "
+              f"{format_number(r['critical_mach'], 3):>7}"
+              + ("" if r["status"] == "ok" else f"  ({r['status']})"))
+    if sigma is not None:
+        print(f"cavitation number sigma {sigma:.4g}: rows with a negative cavitation_margin "
+              "cavitate (see --json or --csv)")
+    if args.csv:
+        print(f"rows written to {args.csv}")
+    print(CAUTION)
+    return EXIT_OK
+
+
 def cmd_naca(args) -> int:
     from foilmap.report.text import xy_lines
     from foilmap.section.naca import naca4_coordinates, parse_naca4
@@ -276,7 +421,7 @@ def cmd_fit(args) -> int:
     if args.report:
         report = _png_target(args.report, "fit")
     coords = load_coordinates(args.coords)
-    fit = fit_section(coords.xy, coords.le_index, args.n)
+    fit = fit_section(coords.xy, coords.le_index, args.n, source_le=coords.source_le)
     print(f"read {coords.xy.shape[0]} points of {coords.name!r} ({coords.layout} layout"
           f"{', reversed to run over the upper surface first' if coords.reversed else ''})")
     if coords.te_gap > 0:
@@ -291,8 +436,10 @@ def cmd_fit(args) -> int:
             "max_deviation_chords": fit.max_deviation, "rms_deviation_chords": fit.rms_deviation,
             "te_gap_chords": coords.te_gap}
     write_text_atomic(args.output, format_section(coords.name, fit.coefficients,
-                                                  math.degrees(fit.te_angle), prov))
-    print(f"section written to {args.output}")
+                                                  math.degrees(fit.te_angle), prov,
+                                                  reference_le=fit.reference_le))
+    print(f"section written to {args.output}; its angles, Cl and Cm are measured from the "
+          f"file's chord line (leading edge to trailing edge as the file gives them)")
     if args.report:
         from foilmap.report.plots import plot_fit
 
@@ -493,11 +640,26 @@ def build_parser() -> argparse.ArgumentParser:
                    metavar="RE", help="chord Reynolds number: adds Stratford's turbulent criterion")
     e.add_argument("--proxy-end", type=_finite("proxy end station", 0.0, 1.0, open_lo=True),
                    default=0.9, metavar="X", help="chord station where the recovery proxies stop")
+    _add_conditions(e)
     e.add_argument("--json", action="store_true", help="print one JSON object")
     e.add_argument("--table", metavar="FILE.csv", help="also write x, y, surface, cp, q per point")
     e.add_argument("--table-points", type=_int_range("table points", 5, 100001), default=161,
                    metavar="N", help="points in the --table file (default 161, cosine spacing)")
     e.set_defaults(func=cmd_evaluate)
+
+    sw = sub.add_parser("sweep", help="the operating range: figures over angles or Cl values")
+    sw.add_argument("section", help="section file (TOML)")
+    g = sw.add_mutually_exclusive_group(required=True)
+    g.add_argument("--alpha", type=_range("angle", -30.0, 30.0), metavar="A:B:STEP",
+                   help="angles of attack in degrees, e.g. -4:10:0.5")
+    g.add_argument("--cl", type=_range("lift coefficient", -5.0, 5.0), metavar="A:B:STEP",
+                   help="lift coefficients, e.g. 0:1.2:0.1")
+    _add_conditions(sw)
+    sw.add_argument("--json", action="store_true", help="print {\"rows\": [...]} as JSON")
+    sw.add_argument("--csv", metavar="FILE.csv", help="also write the rows as CSV")
+    sw.add_argument("-o", "--output", metavar="FILE.png",
+                    help="also draw Cl, Cm and the minimum-pressure envelope")
+    sw.set_defaults(func=cmd_sweep)
 
     c = sub.add_parser("coords", help="write coordinates (two columns, TE-upper-LE-lower-TE)")
     c.add_argument("section", help="section file (TOML)")
@@ -629,13 +791,34 @@ def _terminate(signum, frame):  # noqa: ARG001 - signal handler signature
     raise SystemExit(128 + signum)
 
 
+def _negative_values(argv: list[str]) -> list[str]:
+    """Join a value that starts with a minus sign to its option (``--alpha -4:8:2`` →
+    ``--alpha=-4:8:2``): argparse would take it for an option."""
+    out: list[str] = []
+    it = iter(argv)
+    for tok in it:
+        if tok.startswith("--") and "=" not in tok:
+            nxt = next(it, None)
+            if nxt is not None and len(nxt) > 1 and nxt[0] == "-" and (nxt[1].isdigit()
+                                                                       or nxt[1] == "."):
+                out.append(f"{tok}={nxt}")
+                continue
+            out.append(tok)
+            if nxt is not None:
+                out.append(nxt)
+            continue
+        out.append(tok)
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
     import signal
 
     # SIGTERM (a batch scheduler's walltime, a kill) closes files and stops workers cleanly
     signal.signal(signal.SIGTERM, _terminate)
     try:
-        args = build_parser().parse_args(argv)
+        args = build_parser().parse_args(
+            _negative_values(list(sys.argv[1:] if argv is None else argv)))
         return args.func(args)
     except InputError as exc:
         msg = str(exc)

@@ -17,6 +17,7 @@ from foilmap.section import _compiled
 from foilmap.section.conformal import DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN
 from foilmap.section.evaluation import Evaluation, analyse
 from foilmap.section.geometry import exact_points_at_x
+from foilmap.section.operating import compressible_cp, critical_mach
 from foilmap.section.status import Status
 
 __all__ = ["Problem", "Outcome", "INVALID_CONSTRAINT", "front_vectors"]
@@ -63,17 +64,26 @@ class Problem:
     def _specs(self) -> list[tuple[str, float, object]]:
         """The study's constraints as (name, typical size, g(ev, st, peak) ≤ 0), in log order
         (every bound is bound into its function as a default argument; ``st`` holds the exact
-        thickness at the ``min_thickness_at`` stations, shape (B, M)).
+        thickness at the ``station_thickness`` stations, shape (B, M)).
 
         The search sees each g divided by its typical size (every g of order one for the
         augmented Lagrangian); the logs keep physical values.
         """
         c = self.constraints
         specs = []
-        if "min_thickness" in c:
-            specs.append(("min_thickness", 0.01, lambda ev, st, pk: c["min_thickness"] - ev.thickness))
-        if "max_thickness" in c:
-            specs.append(("max_thickness", 0.01, lambda ev, st, pk: ev.thickness - c["max_thickness"]))
+
+        def window(key, name, scale, field, lo_limit, hi_limit, unit=1.0):
+            """g for the [low, high] of a key; a bound at the key's own limit bounds nothing."""
+            lo, hi = c[key]
+            if lo > lo_limit:
+                specs.append((f"{name}_low", scale,
+                              lambda ev, st, pk, lo=lo * unit: lo - getattr(ev, field)))
+            if hi < hi_limit:
+                specs.append((f"{name}_high", scale,
+                              lambda ev, st, pk, hi=hi * unit: getattr(ev, field) - hi))
+
+        if "thickness" in c:
+            window("thickness", "thickness", 0.01, "thickness", 0.0, 1.0)
         if "thickness_x" in c:
             lo, hi = c["thickness_x"]
             specs.append(("thickness_x_low", 0.05, lambda ev, st, pk, lo=lo: lo - ev.thickness_x))
@@ -82,19 +92,40 @@ class Problem:
         if "min_le_radius" in c:
             specs.append(("min_le_radius", 0.002,
                           lambda ev, st, pk: c["min_le_radius"] - ev.le_radius))
-        if "min_te_angle_deg" in c:
-            tau = math.radians(c["min_te_angle_deg"])
-            specs.append(("min_te_angle", math.radians(1.0), lambda ev, st, pk: tau - ev.te_angle))
+        if "te_angle_deg" in c:
+            window("te_angle_deg", "te_angle", math.radians(1.0), "te_angle", 0.0, 60.0,
+                   math.radians(1.0))
+        if "camber" in c:
+            window("camber", "camber", 0.005, "camber", -0.5, 0.5)
+        if "camber_x" in c:
+            window("camber_x", "camber_x", 0.05, "camber_x", 0.0, 1.0)
         if "cm" in c:
             lo, hi = c["cm"]
             specs.append(("cm_low", 0.01, lambda ev, st, pk, lo=lo: lo - ev.cm_quarter_chord))
             specs.append(("cm_high", 0.01, lambda ev, st, pk, hi=hi: ev.cm_quarter_chord - hi))
-        for i, (x, t) in enumerate(c.get("min_thickness_at", [])):
+        for i, (x, t) in enumerate(c.get("station_thickness", [])):
             specs.append((f"thickness_at_{x:g}", 0.005,
                           lambda ev, st, pk, i=i, t=t: t - st[:, i]))
         if "max_peak_suction" in c:
             specs.append(("max_peak_suction", 0.1, lambda ev, st, pk: pk - c["max_peak_suction"]))
+        if "cavitation_margin" in c:
+            sigma = self.point.sigma
+            specs.append(("cavitation_margin", 0.05,
+                          lambda ev, st, pk: c["cavitation_margin"] - (sigma - pk)))
+        if "min_critical_mach" in c:
+            specs.append(("min_critical_mach", 0.01,
+                          lambda ev, st, pk: c["min_critical_mach"] - self.critical_mach(pk)))
         return specs
+
+    def critical_mach(self, peak: np.ndarray) -> np.ndarray:
+        """Critical Mach number at an incompressible peak suction (the point's rule)."""
+        return critical_mach(-peak, self.point.compressibility)
+
+    def corrected_peak(self, peak: np.ndarray) -> np.ndarray:
+        """The peak suction at the point's Mach number (incompressible when it has none)."""
+        if not self.point.mach:
+            return peak
+        return -compressible_cp(-peak, self.point.mach, self.point.compressibility)
 
     @property
     def constraint_names(self) -> list[str]:
@@ -124,8 +155,9 @@ class Problem:
 
     @property
     def stations(self) -> np.ndarray:
-        """Chord stations of the ``min_thickness_at`` constraints, shape (M,)."""
-        return np.array([x for x, _ in self.constraints.get("min_thickness_at", [])], dtype=float)
+        """Chord stations of the ``station_thickness`` constraints, shape (M,)."""
+        return np.array([x for x, _ in self.constraints.get("station_thickness", [])],
+                        dtype=float)
 
     def evaluate(self, y: np.ndarray) -> Outcome:
         """Objectives and constraints of the search vectors ``y`` (B, D)."""
@@ -137,7 +169,8 @@ class Problem:
             extra = {}
         status = ev.status.copy()
         values = {
-            "peak_suction": peak,
+            "peak_suction": self.corrected_peak(peak),
+            "critical_mach_deficit": 1.0 - self.critical_mach(peak),
             "severity": ev.severity,
             "stratford_margin": ev.stratford_margin,
             "laminar_deficit": 1.0 - np.where(np.isnan(ev.thwaites_sep_x_upper),
@@ -149,6 +182,11 @@ class Problem:
         obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
         weights = np.array([w for _, w in self.objectives])
         g = self._constraints(ev, st, peak)
+        if self.point.mach:  # the peak-suction bound holds at the point's Mach number
+            names = self.constraint_names
+            if "max_peak_suction" in names:
+                j = names.index("max_peak_suction")
+                g[:, j] = self.corrected_peak(peak) - self.constraints["max_peak_suction"]
         if self.epsilon is not None:  # minimise the first objective, bound the second
             f = obj[:, 0].copy()
             g = np.concatenate([g, (obj[:, 1] - self.epsilon)[:, None]], axis=1)

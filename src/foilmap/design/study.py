@@ -38,6 +38,16 @@ OBJECTIVES = {
     "cm_magnitude": "|Cm| about the quarter chord",
     "area": "cross-section area in chord^2",
     "profile_drag": "Cd of the integral boundary-layer screening (needs reynolds)",
+    "critical_mach_deficit": "1 - the critical Mach number (minimising it maximises the "
+                             "critical Mach number), at the largest peak suction of the point",
+}
+
+#: constraint keys of earlier versions, and what replaces each
+RENAMED_CONSTRAINTS = {
+    "min_thickness": "thickness = [low, high]",
+    "max_thickness": "thickness = [low, high]",
+    "min_te_angle_deg": "te_angle_deg = [low, high]",
+    "min_thickness_at": "station_thickness = [[x, t], ...]",
 }
 
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
@@ -75,6 +85,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "te_angle_deg": Key("range", [6.0, 14.0],
                             "trailing-edge angle in degrees: a number (fixed) or [low, high]",
                             0.0, 60.0),
+        "symmetric": Key("bool", False, "true: real coefficients only, so the section is "
+                         "symmetric (camber exactly 0, Cl 0 at zero angle; fins, keels, rudders, "
+                         "struts, masts)"),
     },
     "point": {
         "name": Key("name", None, "operating-point name", required=True),
@@ -83,22 +96,45 @@ SCHEMA: dict[str, dict[str, Key]] = {
                         "[low, high]: peak suction is held over the ends and the design Cl",
                         -5.0, 5.0),
         "reynolds": Key("float", None, "chord Reynolds number (for stratford_margin)", 1e3, 1e10),
+        "mach": Key("float", None, "free-stream Mach number: peak suction corrected by the "
+                    "compressibility rule", 0.0, 0.95),
+        "compressibility": Key("choice", "karman-tsien", "rule for mach and the critical Mach "
+                               "number: karman-tsien or prandtl-glauert",
+                               choices=("karman-tsien", "prandtl-glauert")),
+        "sigma": Key("float", None, "cavitation number (or give speed, depth and "
+                     "water_temperature)", 0.0, 1e6),
+        "speed": Key("float", None, "speed through the water, m/s (for sigma)", 0.0, 200.0),
+        "depth": Key("float", None, "depth below the free surface, m (for sigma)", 0.0, 11000.0),
+        "water_temperature": Key("float", None, "water temperature, deg C, 0 to 40 (for sigma)",
+                                 0.0, 40.0),
+        "water": Key("choice", "fresh", "fresh or sea water (density, for sigma)",
+                     choices=("fresh", "sea")),
     },
     "objectives": {
         name: Key("float", None, f"weight of {name}: {text}", 0.0, 1e6)
         for name, text in OBJECTIVES.items()
     },
     "constraints": {
-        "min_thickness": Key("float", None, "smallest maximum thickness t/c", 0.0, 1.0),
-        "max_thickness": Key("float", None, "largest maximum thickness t/c", 0.0, 1.0),
+        "thickness": Key("range", None, "[low, high] bounds on the maximum thickness t/c",
+                         0.0, 1.0),
         "thickness_x": Key("range", None, "[low, high] x/c window for the maximum thickness",
                            0.0, 1.0),
+        "station_thickness": Key("pairs", None, "[[x/c, t/c], ...]: least thickness at stations",
+                                 0.0, 1.0),
+        "camber": Key("range", None, "[low, high] bounds on the signed maximum camber (chords)",
+                      -0.5, 0.5),
+        "camber_x": Key("range", None, "[low, high] x/c window for the maximum camber",
+                        0.0, 1.0),
         "min_le_radius": Key("float", None, "smallest leading-edge radius, chords", 0.0, 1.0),
-        "min_te_angle_deg": Key("float", None, "smallest trailing-edge angle, degrees", 0.0, 60.0),
+        "te_angle_deg": Key("range", None, "[low, high] bounds on the trailing-edge angle, "
+                            "degrees", 0.0, 60.0),
         "cm": Key("range", None, "[low, high] bounds on Cm c/4 at the design Cl", -2.0, 2.0),
-        "min_thickness_at": Key("pairs", None, "[[x/c, t/c], ...]: least thickness at stations",
-                                0.0, 1.0),
         "max_peak_suction": Key("float", None, "largest -Cp_min over the evaluated Cl", 0.0, 100.0),
+        "cavitation_margin": Key("float", None, "least sigma - peak suction over the point's Cl "
+                                 "(needs the point's sigma, or speed, depth, water_temperature)",
+                                 -100.0, 100.0),
+        "min_critical_mach": Key("float", None, "smallest critical Mach number over the point's "
+                                 "Cl", 0.0, 1.0),
     },
     "search": {
         "method": Key("choice", "cmaes", "search method: cmaes (one weighted objective), comocma "
@@ -155,6 +191,10 @@ def _check(where: str, path: str, key: Key, v):
             what = "letters, digits, '_', '-', '.' (1 to 64, starting with a letter or digit)"
             _fail(where, f"{path} = {v!r} is not allowed ({'a string' if key.kind == 'str' else what})")
         return v
+    if key.kind == "bool":
+        if not isinstance(v, bool):
+            _fail(where, f"{path} = {v!r} is not allowed (true or false)")
+        return v
     if key.kind == "choice":
         if v not in key.choices:
             _fail(where, f"{path} = {v!r} is not allowed (one of: {', '.join(key.choices)})")
@@ -167,7 +207,7 @@ def _check(where: str, path: str, key: Key, v):
                          f"from {rng})")
         return [int(s) for s in v]
     if key.kind == "range":
-        if _num(v) and key.default is not None and path.endswith("te_angle_deg"):
+        if _num(v) and path.endswith("shape.te_angle_deg"):
             v = [v, v]
         ok = isinstance(v, list) and len(v) == 2 and all(_num(x) and lo <= x <= hi for x in v)
         if not ok or v[0] > v[1]:
@@ -204,6 +244,9 @@ def _table(where: str, name: str, data, schema: dict[str, Key], required_table=F
         _fail(where, f"[{name}] must be a table")
     out = {}
     for k in data:
+        if name == "constraints" and k in RENAMED_CONSTRAINTS:
+            _fail(where, f"'constraints.{k}' was renamed: write constraints."
+                         f"{RENAMED_CONSTRAINTS[k]}")
         if k not in schema:
             _fail(where, f"unknown key '{name}.{k}' (allowed: {', '.join(schema)})")
     for k, key in schema.items():
@@ -229,6 +272,9 @@ class Point:
     cl: float
     cl_range: tuple[float, float] | None
     reynolds: float | None
+    mach: float | None = None
+    compressibility: str = "karman-tsien"
+    sigma: float | None = None  # cavitation number (given, or from speed, depth, temperature)
 
     @property
     def cls(self) -> tuple[float, ...]:
@@ -337,7 +383,8 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
             _fail(where, f"point[{i}].cl = {p['cl']:g} is outside its cl_range "
                          f"{p['cl_range']!r}")
         points.append(Point(p["name"], p["cl"], None if p["cl_range"] is None
-                            else tuple(p["cl_range"]), p["reynolds"]))
+                            else tuple(p["cl_range"]), p["reynolds"], p["mach"],
+                            p["compressibility"], _point_sigma(where, i, p)))
     if len({p.name for p in points}) != len(points):
         _fail(where, "point names must be distinct")
     obj = data.get("objectives")
@@ -354,6 +401,7 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
                     _fail(where, f"objective {needs_re} needs 'reynolds' at point {p.name!r}")
     cons = _table(where, "constraints", data.get("constraints"), SCHEMA["constraints"])
     cons = {k: v for k, v in cons.items() if v is not None}
+    _check_constraints(where, cons, shape, points)
     search = _table(where, "search", data.get("search"), SCHEMA["search"])
     variants: list[tuple[str, dict]] = []
     raw_var = data.get("variant", [])
@@ -415,6 +463,57 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
     return study
 
 
+def _point_sigma(where: str, i: int, p: dict) -> float | None:
+    """A point's cavitation number: given, or from its speed, depth and water temperature."""
+    parts = ("speed", "depth", "water_temperature")
+    given = [k for k in parts if p[k] is not None]
+    if p["sigma"] is not None:
+        if given:
+            _fail(where, f"point[{i}]: give sigma or {', '.join(parts)}, not both (point[{i}]."
+                         f"{given[0]} was also given)")
+        return p["sigma"]
+    if not given:
+        return None
+    missing = [k for k in parts if p[k] is None]
+    if missing:
+        _fail(where, f"point[{i}]: the cavitation number from speed needs {', '.join(parts)}; "
+                     f"missing point[{i}].{missing[0]}")
+    if p["speed"] <= 0:
+        _fail(where, f"point[{i}].speed = {p['speed']!r} is not allowed (a speed above 0)")
+    from foilmap.section.operating import cavitation_number
+
+    return float(cavitation_number(p["speed"], p["depth"], p["water_temperature"], p["water"]))
+
+
+def _check_constraints(where: str, cons: dict, shape: dict, points: list) -> None:
+    """Constraints that contradict each other, or the shape or the points, fail at load naming
+    both keys."""
+    if "thickness" in cons:
+        lo, hi = cons["thickness"]
+        for x, tt in cons.get("station_thickness", []):
+            if tt > hi:
+                _fail(where, f"constraints.station_thickness asks t/c {tt:g} at x/c {x:g}, above "
+                             f"the largest maximum thickness constraints.thickness = "
+                             f"[{lo:g}, {hi:g}]: the two contradict each other")
+    if shape.get("symmetric") and "camber" in cons:
+        lo, hi = cons["camber"]
+        if not lo <= 0.0 <= hi:
+            _fail(where, f"constraints.camber = [{lo:g}, {hi:g}] excludes zero, but "
+                         "shape.symmetric = true makes the camber exactly 0")
+    if "te_angle_deg" in cons:
+        lo, hi = cons["te_angle_deg"]
+        slo, shi = shape["te_angle_deg"]
+        if hi < slo or lo > shi:
+            _fail(where, f"constraints.te_angle_deg = [{lo:g}, {hi:g}] lies outside the searched "
+                         f"range shape.te_angle_deg = [{slo:g}, {shi:g}]")
+    if "cavitation_margin" in cons:
+        for p in points:
+            if p.sigma is None:
+                _fail(where, f"constraints.cavitation_margin needs a cavitation number at point "
+                             f"{p.name!r}: point.sigma, or point.speed, depth and "
+                             "water_temperature")
+
+
 def _resolve_start(where: str, path: str, shape: dict, base_dir: str | None, read_start) -> None:
     """Resolve a start given as a file name through ``read_start``.
 
@@ -437,6 +536,12 @@ def _resolve_start(where: str, path: str, shape: dict, base_dir: str | None, rea
 
 def _check_shape(where: str, run: RunSpec) -> None:
     n = run.shape["coefficients"]
+    if run.shape.get("symmetric"):
+        given = run.shape.get("start_pairs") or run.shape["start"]
+        if not isinstance(given, str) and run.shape["start"] != SCHEMA["shape"]["start"].default \
+                and any(abs(b) > 1e-12 for _, b in given[:n]):
+            _fail(where, f"shape.symmetric = true needs a symmetric start (real coefficients: "
+                         f"[a, 0] pairs); shape.start has imaginary parts (run {run.run_id})")
     if not isinstance(run.shape["start"], str) and len(run.shape["start"]) > n:
         _fail(where, f"shape.start has {len(run.shape['start'])} pairs but shape.coefficients "
                      f"= {n} (run {run.run_id})")
@@ -451,6 +556,7 @@ class Parametrisation:
 
     y holds 2N scaled shape components, then (if τ varies) one τ coordinate in [0, 1]:
     A_n = start_n + (step/n)(y_{2n−2} + i y_{2n−1}) and τ = τ_lo + (τ_hi − τ_lo) y_τ.
+    A symmetric section has N real components: A_n = start_n + (step/n) y_{n−1}, all real.
     Dividing by n gives higher harmonics smaller steps, which conditions the search
     (docs/method.md).
     """
@@ -462,6 +568,7 @@ class Parametrisation:
     tau_range: tuple[float, float]  # radians
 
     start_tau: float | None = None  # radians, the starting section's own angle if given
+    symmetric: bool = False  # real coefficients only: y holds N real components (then τ)
 
     @classmethod
     def from_shape(cls, shape: dict) -> "Parametrisation":
@@ -472,8 +579,16 @@ class Parametrisation:
             start[i] = complex(a, b)
         lo, hi = shape["te_angle_deg"]
         tau0 = shape.get("start_te_angle_deg")
+        symmetric = bool(shape.get("symmetric", False))
+        if symmetric:
+            start = start.real.astype(complex)
         return cls(n, start, shape["step"], shape["limit"], (math.radians(lo), math.radians(hi)),
-                   None if tau0 is None else math.radians(tau0))
+                   None if tau0 is None else math.radians(tau0), symmetric)
+
+    @property
+    def shape_dimension(self) -> int:
+        """Search coordinates of the shape: 2N, or N for a symmetric section."""
+        return self.n if self.symmetric else 2 * self.n
 
     @property
     def tau_free(self) -> bool:
@@ -481,7 +596,7 @@ class Parametrisation:
 
     @property
     def dimension(self) -> int:
-        return 2 * self.n + (1 if self.tau_free else 0)
+        return self.shape_dimension + (1 if self.tau_free else 0)
 
     def x0(self) -> np.ndarray:
         """The start: the start coefficients and the starting section's τ (else mid-range)."""
@@ -495,8 +610,8 @@ class Parametrisation:
     def bounds(self) -> tuple[list, list]:
         """Per-coordinate bounds for CMA-ES's BoundTransform."""
         b = self.limit / self.step  # |y| ≤ limit/step gives |ΔA_n| ≤ limit/n
-        lo = [-b] * (2 * self.n)
-        hi = [b] * (2 * self.n)
+        lo = [-b] * self.shape_dimension
+        hi = [b] * self.shape_dimension
         if self.tau_free:
             lo.append(0.0)
             hi.append(1.0)
@@ -515,8 +630,11 @@ class Parametrisation:
 
         y = np.atleast_2d(y)
         n = np.arange(1, self.n + 1)
-        a = self.start[None, :] + (self.step / n) * (y[:, 0 : 2 * self.n : 2]
-                                                     + 1j * y[:, 1 : 2 * self.n : 2])
+        if self.symmetric:
+            a = self.start[None, :] + (self.step / n) * y[:, : self.n]
+        else:
+            a = self.start[None, :] + (self.step / n) * (y[:, 0 : 2 * self.n : 2]
+                                                         + 1j * y[:, 1 : 2 * self.n : 2])
         if self.tau_free:
             lo, hi = self.tau_range
             tau = lo + (hi - lo) * np.clip(y[:, -1], 0.0, 1.0)

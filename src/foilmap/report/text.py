@@ -18,6 +18,7 @@ __all__ = [
     "evaluation_record",
     "format_summary",
     "format_number",
+    "display_values",
     "plural",
     "surface_table_csv",
     "coordinates_text",
@@ -92,11 +93,30 @@ def plural(n: int, word: str) -> str:
 
 
 def format_number(v, digits: int = 4) -> str:
+    """A figure for a text table: fixed digits, no negative zero, ``-`` for none."""
     if v is None:
         return "-"
     if isinstance(v, str):
         return v
-    return f"{v:.{digits}f}"
+    if isinstance(v, (list, tuple)):
+        return " to ".join(format_number(x, digits) for x in v)
+    s = f"{v:.{digits}f}"
+    return s[1:] if s.startswith("-") and float(s) == 0.0 else s
+
+
+def display_values(obj, significant: int = 12):
+    """A JSON-ready copy with floats rounded to ``significant`` digits (so that 2 prints as 2,
+    not 1.9999999999999996) and no negative zero."""
+    if isinstance(obj, float):
+        if obj != obj or obj in (float("inf"), float("-inf")):
+            return obj
+        v = float(f"{obj:.{significant}g}")
+        return 0.0 if v == 0.0 else v
+    if isinstance(obj, dict):
+        return {k: display_values(v, significant) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [display_values(v, significant) for v in obj]
+    return obj
 
 
 _ROWS = (
@@ -104,7 +124,15 @@ _ROWS = (
         ("Cl", "cl", 4), ("angle of attack  [deg]", "alpha_deg", 3),
         ("zero-lift angle  [deg]", "alpha_zero_lift_deg", 3),
         ("lift slope  [1/deg]", "lift_slope_per_deg", 5),
-        ("max ideal Cl", "cl_max_ideal", 3), ("Cm c/4", "cm_quarter_chord", 5),
+        ("Cl limit of the ideal flow (not stall)", "cl_max_ideal", 3),
+        ("Cm c/4", "cm_quarter_chord", 5),
+    )),
+    ("Operating range", (
+        ("critical Mach number", "critical_mach", 4),
+        ("Mach number", "mach", 3), ("Cp min at that Mach", "cp_min_compressible", 4),
+        ("cavitation number sigma", "cavitation_number", 4),
+        ("cavitation margin sigma - peak suction", "cavitation_margin", 4),
+        ("Cl range free of cavitation", "cavitation_free_cl", 4),
     )),
     ("Pressure", (
         ("Cp min", "cp_min", 4), ("  at x/c", "cp_min_x", 4), ("  on surface", "cp_min_surface", 0),
@@ -136,12 +164,16 @@ def format_summary(rec: dict, proxies: tuple[str, ...] = ("severity",)) -> str:
         skip.add("recovery_severity")
     title = f"foilmap | {rec['name'] or 'section'} | status: {rec['status']}"
     out = [title, "=" * len(title)]
+    if rec.get("chord_line"):
+        out.append(f"angles, Cl and Cm from the {rec['chord_line']} chord line")
     for group, rows in _ROWS:
         out.append(f"{group}")
-        for label, key, digits in rows:
-            if key in skip:
-                continue
-            out.append(f"  {label:<36s} {format_number(rec[key], digits):>12s}")
+        shown = [(lb, k, d) for lb, k, d in rows if k not in skip and k in rec]
+        if not shown:
+            out.pop()
+            continue
+        for label, key, digits in shown:
+            out.append(f"  {label:<40s} {format_number(rec[key], digits):>12s}")
     out.append("")
     out.append(CONVENTIONS)
     out.append(CAUTION)

@@ -108,7 +108,7 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
 def _variable_names(problem: Problem) -> list[str]:
     names = []
     for n in range(1, problem.param.n + 1):
-        names += [f"re_A{n}", f"im_A{n}"]
+        names += [f"re_A{n}"] if problem.param.symmetric else [f"re_A{n}", f"im_A{n}"]
     if problem.param.tau_free:
         names.append("te_angle_unit")
     return names

@@ -152,6 +152,13 @@ class Analysis:
     split: SurfaceSplit
     grid: CircleGrid | None = None
     map_values: object = None
+    line: ChordFrame | None = None  # the chord line of angles, Cl and Cm (None: ``frame``)
+
+    @property
+    def angle_frame(self) -> ChordFrame:
+        """The frame angles, Cl and Cm are measured in: the section's reference chord line
+        (a fitted section's source line) or its own."""
+        return self.frame if self.line is None else self.line
 
     def peak_suction_at(self, cl) -> tuple[np.ndarray, np.ndarray]:
         """Peak suction −Cp_min and status at another lift coefficient, reusing the map.
@@ -161,7 +168,7 @@ class Analysis:
         ABOVE_MAX_LIFT where the section cannot reach ``cl``, and the original status where
         the section itself is invalid.
         """
-        fl = flow_at_cl(self.sections, self.frame, cl)
+        fl = flow_at_cl(self.sections, self.angle_frame, cl)
         status = np.where(self.evaluation.status == Status.OK, fl.status,
                           self.evaluation.status).astype(np.int8)
         with np.errstate(all="ignore"):
@@ -181,6 +188,7 @@ def analyse(
     proxy_end: float = DEFAULT_PROXY_END,
     critical_margin: float = DEFAULT_CRITICAL_MARGIN,
     singular_margin: float = DEFAULT_SINGULAR_MARGIN,
+    reference_le=None,
 ) -> Analysis:
     """Evaluate a batch of sections at a target Cl or at an angle of attack.
 
@@ -202,6 +210,11 @@ def analyse(
         Chord station where the proxies stop (see :data:`DEFAULT_PROXY_END`).
     critical_margin, singular_margin : float
         δ₁ and δ₂ of the validity checks (docs/method.md, "Validity").
+    reference_le : complex or ndarray (B,), optional
+        The leading-edge end of a reference chord line in the section's own chord frame (a
+        fitted section's source line, :class:`~foilmap.store.sectionfile.SectionRecord`):
+        angles, Cl, the lift slope, the zero-lift angle and Cm c/4 are then measured from the
+        line from this point to the trailing edge.  Geometry and stations stay in the own frame.
     """
     if (cl is None) == (alpha is None):
         raise ValueError("give exactly one of cl and alpha")
@@ -223,8 +236,11 @@ def analyse(
         zc = frame.to_chord(mv.z)
         split = split_surfaces(zc, grid.phi, frame.phi_le)
         geom = section_geometry(sections, mv, grid, frame, split, zc=zc)
-        flow = flow_at_cl(sections, frame, cl) if cl is not None else flow_at_alpha(
-            sections, frame, alpha
+        line = None if reference_le is None else frame.rebased(
+            np.broadcast_to(np.asarray(reference_le, dtype=complex), (nb,)), sections.k)
+        aframe = frame if line is None else line
+        flow = flow_at_cl(sections, aframe, cl) if cl is not None else flow_at_alpha(
+            sections, aframe, alpha
         )
         status = np.where(status == Status.OK, flow.status, status).astype(np.int8)
         q = surface_speed(flow, mv, grid)
@@ -232,7 +248,7 @@ def analyse(
             sections, _valid_only(flow, status), points)
         phi_pk = np.where(np.isfinite(phi_pk), phi_pk, 0.0)
         zpk = frame.to_chord(map_at(sections, np.exp(1j * phi_pk)[:, None]).z)[:, 0]
-        cm = moment_quarter_chord(sections, frame, flow)
+        cm = moment_quarter_chord(sections, aframe, flow)
         nan = np.full(nb, np.nan)
         severity = nan.copy()
         th_up, th_lo, th_min = nan.copy(), nan.copy(), nan.copy()
@@ -272,9 +288,9 @@ def analyse(
         values = dict(
             cl=flow.cl,
             alpha=flow.alpha,
-            alpha_zero_lift=zero_lift_angle(sections, frame),
+            alpha_zero_lift=zero_lift_angle(sections, aframe),
             lift_slope=flow.lift_slope,
-            cl_max_ideal=max_ideal_cl(sections, frame),
+            cl_max_ideal=max_ideal_cl(sections, aframe),
             cm_quarter_chord=cm,
             cp_min=cp_min,
             cp_min_x=zpk.real,
@@ -303,7 +319,7 @@ def analyse(
             values[name] = v
     upper_pk = (phi_pk % (2.0 * np.pi)) < frame.phi_le
     ev = Evaluation(status=status.astype(np.int8), cp_min_upper=upper_pk & ~bad, **values)
-    return Analysis(sections, ev, frame, flow, split, grid, mv)
+    return Analysis(sections, ev, frame, flow, split, grid, mv, line)
 
 
 def _valid_only(flow: FlowState, status: np.ndarray) -> FlowState:

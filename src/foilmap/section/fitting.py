@@ -36,12 +36,14 @@ class FitResult:
     te_angle : float, τ in radians
     iterations : Theodorsen iterations used
     converged : whether the angle correction settled to the tolerance
+    source_le : the given contour's leading edge (its chord line's start) in the map plane
     """
 
     coefficients: np.ndarray
     te_angle: float
     iterations: int
     converged: bool
+    source_le: complex = 0j
 
     def truncated(self, n: int) -> np.ndarray:
         return self.coefficients[:n].copy()
@@ -88,7 +90,8 @@ def _contour_spline(xy: np.ndarray, le: int):
 
 def fit_coordinates(xy: np.ndarray, le: int, samples: int = 2048, tol: float = 1e-13,
                     max_iter: int = 400, te_angle: float | None = None,
-                    singular_point: complex | None = None) -> FitResult:
+                    singular_point: complex | None = None, source_le: complex = 0j
+                    ) -> FitResult:
     """Theodorsen–Garrick fit of a closed chord-frame contour (TE → upper → LE → lower → TE).
 
     Parameters
@@ -152,7 +155,10 @@ def fit_coordinates(xy: np.ndarray, le: int, samples: int = 2048, tol: float = 1
         if change < tol:
             converged = True
             break
-    return FitResult(a, tau, it, converged)
+    # the given chord frame maps to the map plane by z = k (2 (zc − p_s)/(1 − p_s) − 1): its
+    # leading edge zc = 0 is here, and its trailing edge zc = 1 is the map's z = k
+    return FitResult(a, tau, it, converged,
+                     complex(k * (2.0 * (source_le - p_s) / (1.0 - p_s) - 1.0)))
 
 
 def contour_distances(fitted: np.ndarray, given: np.ndarray) -> np.ndarray:
@@ -190,10 +196,17 @@ class SectionFit:
     full_terms: int
     iterations: int
     converged: bool
-    fitted_xy: np.ndarray  # (m, 2) the truncated section's contour in its chord frame
+    fitted_xy: np.ndarray  # (m, 2) the truncated section's contour in the source's chord frame
+    #: the source's leading edge in the fitted section's own chord frame: angles, Cl and Cm
+    #: measured from the line from here to the trailing edge are the source's
+    reference_le: complex = 0j
 
 
-def _mapped_contour(coefficients: np.ndarray, te_angle: float, points: int = 4001):
+def _mapped_contour(coefficients: np.ndarray, te_angle: float, points: int = 4001,
+                    source_le: complex | None = None):
+    """The section's contour, (points, 2), in its own chord frame or (given the source's
+    leading edge in the map plane) in the source's; with the status and the source's leading
+    edge in the own chord frame (0 when not given)."""
     from foilmap.section.conformal import SectionSet
     from foilmap.section.evaluation import analyse
     from foilmap.section.geometry import coordinates
@@ -202,7 +215,13 @@ def _mapped_contour(coefficients: np.ndarray, te_angle: float, points: int = 400
     an = analyse(sec, alpha=0.0, points=max(512, 2 * len(coefficients) + 64), proxies=(),
                  singular_margin=1e-4, critical_margin=0.0)
     zc = coordinates(sec, an.frame, an.split, points, "map")[0]
-    return np.column_stack([zc.real, zc.imag]), int(an.evaluation.status[0])
+    ref = 0j
+    if source_le is not None:
+        ref = complex(an.frame.to_chord(np.array([[source_le]]))[0, 0])
+        line = an.frame.rebased(np.array([ref]), sec.k)
+        z = zc / an.frame.scale[0] + an.frame.z_le[0]
+        zc = line.to_chord(z[None, :])[0]
+    return np.column_stack([zc.real, zc.imag]), int(an.evaluation.status[0]), ref
 
 
 def dense_reference(xy: np.ndarray, le: int, points: int = 20001) -> np.ndarray:
@@ -212,15 +231,20 @@ def dense_reference(xy: np.ndarray, le: int, points: int = 20001) -> np.ndarray:
     return np.column_stack([0.5 * (1.0 + np.cos(u)), spl(u)])
 
 
-def fit_section(xy: np.ndarray, le: int, n: int, samples: int = 2048) -> SectionFit:
-    """Fit, truncate to ``n`` coefficients and measure both deviations in chords."""
-    fit = fit_coordinates(xy, le, samples=samples)
+def fit_section(xy: np.ndarray, le: int, n: int, samples: int = 2048,
+                source_le: complex = 0j) -> SectionFit:
+    """Fit, truncate to ``n`` coefficients and measure both deviations in chords.
+
+    ``source_le`` is the source's own leading edge in the chord frame of ``xy``; the fit
+    reports the source chord line (from there to the trailing edge) as ``reference_le``.
+    """
+    fit = fit_coordinates(xy, le, samples=samples, source_le=source_le)
     ref = dense_reference(xy, le)
     full = fit.coefficients[: min(len(fit.coefficients), 256)]
-    full_xy, _ = _mapped_contour(full, fit.te_angle)
+    full_xy, _, _ = _mapped_contour(full, fit.te_angle, source_le=fit.source_le)
     full_max, _ = contour_deviation(full_xy, ref)
     coeffs = fit.truncated(n)
-    fitted, _ = _mapped_contour(coeffs, fit.te_angle)
+    fitted, _, reference_le = _mapped_contour(coeffs, fit.te_angle, source_le=fit.source_le)
     mx, rms = contour_deviation(fitted, ref)
     return SectionFit(coeffs, fit.te_angle, mx, rms, full_max, len(full), fit.iterations,
-                      fit.converged, fitted)
+                      fit.converged, fitted, reference_le)

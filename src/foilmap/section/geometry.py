@@ -50,6 +50,15 @@ class ChordFrame:
         """Map-plane points (B, M) to the chord frame."""
         return (z - self.z_le[:, None]) * self.scale[:, None]
 
+    def rebased(self, le_chord: np.ndarray, z_te: np.ndarray) -> "ChordFrame":
+        """The frame of another chord line: from the point ``le_chord`` (B,), given in this
+        frame's chord coordinates, to the trailing edge ``z_te`` (B,) in the map plane.  A fitted
+        section measures its angles, Cl and Cm from its source's chord line this way."""
+        z_le = self.z_le + np.asarray(le_chord, dtype=complex) / self.scale
+        te_minus_le = z_te - z_le
+        return ChordFrame(self.phi_le, z_le, np.abs(te_minus_le), np.angle(te_minus_le),
+                          1.0 / te_minus_le)
+
 
 def chord_frame(sections: SectionSet, mv: MapValues, grid: CircleGrid) -> ChordFrame:
     """Locate the leading edge (farthest point from the TE) to 1e-11 in circle angle."""

@@ -52,6 +52,9 @@ class Coordinates:
     reversed : the file ran over the lower surface first and was reversed
     te_gap : trailing-edge thickness in chords before closing (0 for a closed edge)
     closing_shift : largest movement of a point by the closing ramp, chords
+    source_le : the file's own leading edge in the chord frame — its sample at the origin (the
+        usual layout, chord on the x-axis), else its sample of least x: the file's chord line
+        runs from there to the trailing edge (1, 0)
     """
 
     name: str
@@ -60,6 +63,7 @@ class Coordinates:
     reversed: bool
     te_gap: float
     closing_shift: float
+    source_le: complex = 0j
 
     @property
     def le_index(self) -> int:
@@ -199,14 +203,20 @@ def normalise_loop(xy: np.ndarray, name: str, layout: str = "loop",
     tb = float(t[np.argmax(np.abs(zq - zte))])
     zle = z[j] if abs(tb) <= 0.01 else zq[np.argmax(np.abs(zq - zte))]
     zc = (z - zle) / (zte - zle)
+    # the file's own leading edge: its origin when it has a sample there (the usual normalised
+    # layout, chord line on the x-axis from (0, 0) to (1, 0)), else its sample of least x
+    at_origin = np.flatnonzero(np.hypot(xy[:, 0], xy[:, 1]) <= 1e-9 * size)
+    i_src = int(at_origin[0]) if at_origin.size else int(np.argmin(xy[:, 0]))
     # orientation: the first half must be the upper surface (counter-clockwise loop)
     area = 0.5 * np.sum(zc.real * np.roll(zc.imag, -1) - np.roll(zc.real, -1) * zc.imag)
     rev = area < 0
     if rev:
         zc = zc[::-1]
         j = len(zc) - 1 - j
+        i_src = len(zc) - 1 - i_src
     gap = zc[0] - zc[-1]
     te_gap = float(abs(gap))
+    source_le = complex(zc[i_src])
     # close an open edge: shift upper by −(gap/2)·x and lower by +(gap/2)·x (LE unmoved)
     shift = np.zeros_like(zc)
     if te_gap > 0:
@@ -214,6 +224,7 @@ def normalise_loop(xy: np.ndarray, name: str, layout: str = "loop",
         shift[j + 1 :] = 0.5 * gap * zc.real[j + 1 :]
         zc = zc + shift
         zc[0] = zc[-1] = 1.0
+    source_le = complex(zc[i_src])
     # the LE as a point of the loop: the farthest sample moved onto it, or inserted beside it
     if abs(tb) <= 0.01:
         zc[j] = 0.0
@@ -221,7 +232,8 @@ def normalise_loop(xy: np.ndarray, name: str, layout: str = "loop",
         k = j + 1 if (tb > 0) != rev else j
         zc = np.insert(zc, k, 0.0)
     xy_out = np.column_stack([zc.real, zc.imag])
-    return Coordinates(name, xy_out, layout, bool(rev), te_gap, float(np.abs(shift).max()))
+    return Coordinates(name, xy_out, layout, bool(rev), te_gap, float(np.abs(shift).max()),
+                       source_le if abs(source_le) > 1e-15 else 0j)
 
 
 def load_coordinates(path: str | Path) -> Coordinates:

@@ -43,7 +43,9 @@ __all__ = [
 MAX_COEFFICIENTS = 64
 #: allowed trailing-edge angle, degrees (k = 2 − τ/π stays in (5/3, 2])
 TE_ANGLE_RANGE_DEG = (0.0, 60.0)
-_SECTION_KEYS = ("name", "te_angle_deg", "coefficients")
+_SECTION_KEYS = ("name", "te_angle_deg", "coefficients", "reference_le")
+#: how far (chords) a reference chord line's leading-edge end may lie from the section's own
+REFERENCE_LE_LIMIT = 0.05
 _TOP_KEYS = ("section", "provenance")
 
 
@@ -55,6 +57,17 @@ class SectionRecord:
     te_angle_deg: float
     coefficients: np.ndarray  # complex, shape (N,)
     provenance: dict = field(default_factory=dict)
+    #: the leading-edge end of the chord line angles are measured from, in the section's own
+    #: chord frame (a fitted section's source line); None: the own line (TE to farthest point)
+    reference_le: complex | None = None
+
+    @property
+    def chord_line(self) -> str:
+        """Which chord line the section's angles, Cl and Cm are measured from, in words."""
+        if self.reference_le is None:
+            return "own: from the trailing edge to the farthest contour point"
+        return (f"source: from ({self.reference_le.real:.6f}, {self.reference_le.imag:.6f}) in "
+                "the own chord frame to the trailing edge (the fitted file's own chord line)")
 
     def to_set(self) -> SectionSet:
         """The section as a batch of one."""
@@ -85,7 +98,7 @@ def parse_section(text: str, source: str = "<text>") -> SectionRecord:
             raise InputError(
                 f"{where}: unknown key 'section.{key}' (allowed: {', '.join(_SECTION_KEYS)})"
             )
-    for key in _SECTION_KEYS:
+    for key in _SECTION_KEYS[:3]:
         if key not in sec:
             raise InputError(f"{where}: missing key 'section.{key}'")
     name = sec["name"]
@@ -125,7 +138,18 @@ def parse_section(text: str, source: str = "<text>") -> SectionRecord:
     prov = data.get("provenance", {})
     if not isinstance(prov, dict):
         raise InputError(f"{where}: 'provenance' must be a table")
-    return SectionRecord(name.strip(), float(tau), np.array(values, dtype=complex), dict(prov))
+    ref = sec.get("reference_le")
+    if ref is not None:
+        ok = (isinstance(ref, list) and len(ref) == 2
+              and all(_is_number(v) and math.isfinite(v) for v in ref)
+              and abs(complex(*ref)) <= REFERENCE_LE_LIMIT)
+        if not ok:
+            raise InputError(f"{where}: 'section.reference_le' = {ref!r} is not allowed (an "
+                             f"[x, y] pair within {REFERENCE_LE_LIMIT:g} chord of the leading "
+                             "edge)")
+        ref = complex(ref[0], ref[1])
+    return SectionRecord(name.strip(), float(tau), np.array(values, dtype=complex), dict(prov),
+                         ref)
 
 
 def load_section(path: str | os.PathLike) -> SectionRecord:
@@ -146,7 +170,8 @@ def _toml_value(v) -> str:
 
 
 def format_section(
-    name: str, coefficients, te_angle_deg: float, provenance: dict | None = None
+    name: str, coefficients, te_angle_deg: float, provenance: dict | None = None,
+    reference_le: complex | None = None,
 ) -> str:
     """Text of a section file (coefficients to full double precision)."""
     c = np.asarray(coefficients, dtype=complex).ravel()
@@ -159,6 +184,10 @@ def format_section(
         f"te_angle_deg = {float(te_angle_deg)!r}",
         f"coefficients = [\n    {pairs},\n]",
     ]
+    if reference_le is not None:
+        lines += ["# angles, Cl and Cm from the source's chord line: from this point (in the own",
+                  "# chord frame) to the trailing edge",
+                  f"reference_le = [{float(reference_le.real)!r}, {float(reference_le.imag)!r}]"]
     if provenance:
         lines.append("")
         lines.append("[provenance]")
