@@ -397,6 +397,56 @@ def cmd_sweep(args) -> int:
     return EXIT_OK
 
 
+def cmd_inverse(args) -> int:
+    from foilmap.report.inverse import inverse_figure, inverse_record
+    from foilmap.report.text import CAUTION
+    from foilmap.section.inverse import inverse_section
+    from foilmap.store.sectionfile import format_section, write_text_atomic
+    from foilmap.store.targetfile import load_target
+
+    png = _png_target(args.report, "inverse") if args.report else None
+    target = load_target(args.target)
+    name = Path(args.target).stem
+    kw = {"cl": args.cl} if args.cl is not None else {"alpha": math.radians(args.alpha)}
+    res = inverse_section(target, te_angle=math.radians(args.te_angle), coefficients=args.n,
+                          **kw)
+    rec = inverse_record(res, name)
+    if not (math.isfinite(res.rms_deviation) and math.isfinite(res.cl)) \
+            or res.fit.max_deviation > 0.01:
+        raise InputError(f"inverse: target {str(args.target)!r} gives no usable section at "
+                         "this operating point (the contour folds or does not close); check "
+                         "the target and the operating point")
+    prov = {"inverse_of": str(args.target), "method": "Lighthill inverse, least closure change",
+            "design_cl": res.cl, "design_alpha_deg": math.degrees(res.alpha),
+            "rms_cp_deviation": rec["rms_cp_deviation"],
+            "max_cp_deviation": rec["max_cp_deviation"],
+            "fit_max_deviation_chords": res.fit.max_deviation}
+    write_text_atomic(args.output, format_section(name, res.fit.coefficients,
+                                                  math.degrees(res.fit.te_angle), prov))
+    if png is not None:
+        _write_png(png, lambda tmp: inverse_figure(res, name).savefig(tmp, dpi=120),
+                   sys.stderr if args.json else None)
+    if args.json:
+        print(json.dumps({**rec, "output": str(args.output)}, indent=1))
+        return EXIT_OK
+    cov = ", ".join(f"{s} x/c {v[0]:.3f} to {v[1]:.3f}" for s, v in rec["target_covers"].items()
+                    if v is not None)
+    print(f"target {args.target}: {rec['target_points']} points ({cov})")
+    print(f"inverse design at Cl {res.cl:.4f}, alpha {rec['alpha_deg']:.3f} deg, trailing-edge "
+          f"angle {rec['te_angle_deg']:.2f} deg; {rec['iterations']} iterations"
+          + ("" if rec["converged"] else " (stopped at the iteration limit)"))
+    print(f"achieved Cp against the target: RMS deviation {rec['rms_cp_deviation']:.2g}, "
+          f"largest {rec['max_cp_deviation']:.2g} at x/c "
+          f"{rec['max_cp_deviation_at']['x']:.3f} ({rec['max_cp_deviation_at']['surface']})")
+    print(f"closure: ln q changed by up to {rec['closure_change_given_max_dlnq']:.2g} where the "
+          f"target is given, {rec['closure_change_free_max_dlnq']:.2g} on the free part; "
+          f"stations beyond x/c 0.99 (the trailing-edge stagnation) are not matched")
+    print(f"fitted with {args.n} coefficients: deviation max {res.fit.max_deviation:.2e}, RMS "
+          f"{res.fit.rms_deviation:.2e} chords; section written to {args.output}")
+    print(CAUTION)
+    return EXIT_OK
+
+
 def cmd_naca(args) -> int:
     from foilmap.report.text import xy_lines
     from foilmap.section.naca import naca4_coordinates, parse_naca4
@@ -660,6 +710,24 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("-o", "--output", metavar="FILE.png",
                     help="also draw Cl, Cm and the minimum-pressure envelope")
     sw.set_defaults(func=cmd_sweep)
+
+    iv = sub.add_parser("inverse", help="the section whose ideal-flow Cp is a target table")
+    iv.add_argument("target", help="target CSV: columns x, surface, and cp or q (as evaluate "
+                    "--table writes)")
+    g = iv.add_mutually_exclusive_group(required=True)
+    g.add_argument("--cl", type=_finite("lift coefficient", -5.0, 5.0), metavar="CL",
+                   help="design lift coefficient of the target")
+    g.add_argument("--alpha", type=_finite("angle of attack", -30.0, 30.0), metavar="DEG",
+                   help="angle of attack of the target, degrees")
+    iv.add_argument("--te-angle", type=_finite("trailing-edge angle", 0.0, 60.0), default=10.0,
+                    metavar="DEG", help="trailing-edge angle of the design (default 10)")
+    iv.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24,
+                    help="shape-series coefficients of the fitted section (default 24)")
+    iv.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                    help="the section file to write")
+    iv.add_argument("--report", metavar="FILE.png", help="also draw target and achieved Cp")
+    iv.add_argument("--json", action="store_true", help="print the figures as JSON")
+    iv.set_defaults(func=cmd_inverse)
 
     c = sub.add_parser("coords", help="write coordinates (two columns, TE-upper-LE-lower-TE)")
     c.add_argument("section", help="section file (TOML)")

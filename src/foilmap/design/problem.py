@@ -162,7 +162,7 @@ class Problem:
     def evaluate(self, y: np.ndarray) -> Outcome:
         """Objectives and constraints of the search vectors ``y`` (B, D)."""
         sec = self.param.sections(y)
-        if "profile_drag" in self.objective_names:
+        if {"profile_drag", "target_cp_rms"} & set(self.objective_names):
             ev, peak, st, extra = self._evaluate_reference(sec)
         else:
             ev, peak, st = self._evaluate_compiled(sec)
@@ -236,11 +236,34 @@ class Problem:
             st = zu.imag - zl.imag
         else:
             st = np.zeros((len(sec), 0))
-        # the screening on the search's own circle grid (exact speeds at its samples)
-        drag = screen_analysis(an, self.point.reynolds, points=self.points).cd
+        extra = {}
+        if "profile_drag" in self.objective_names:
+            # the screening on the search's own circle grid (exact speeds at its samples)
+            extra["profile_drag"] = screen_analysis(an, self.point.reynolds,
+                                                    points=self.points).cd
+        if "target_cp_rms" in self.objective_names:
+            extra["target_cp_rms"] = self.target_cp_rms(an)
         from dataclasses import replace
 
-        return replace(ev, status=status), peak, st, {"profile_drag": drag}
+        return replace(ev, status=status), peak, st, extra
+
+    def target_cp_rms(self, an) -> np.ndarray:
+        """RMS of the exact Cp minus the point's target at the target's stations (those
+        outside the trailing-edge zone), shape (B,)."""
+        from foilmap.section.evaluation import speed_at_stations
+        from foilmap.section.inverse import TE_ZONE
+
+        x, upper, cp = (np.asarray(v) for v in self.point.target)
+        read = x <= TE_ZONE
+        dev = []
+        for side, name in ((True, "upper"), (False, "lower")):
+            m = read & (upper == side)
+            if m.any():
+                with np.errstate(all="ignore"):
+                    q = speed_at_stations(an, x[m], name)
+                dev.append((1.0 - q * q) - cp[m][None, :])
+        d = np.concatenate(dev, axis=1)
+        return np.sqrt(np.mean(d * d, axis=1))
 
     def _constraints(self, ev, st, peak) -> np.ndarray:
         cols = [fn(ev, st, peak) for _, _, fn in self._specs()]

@@ -38,6 +38,8 @@ OBJECTIVES = {
     "cm_magnitude": "|Cm| about the quarter chord",
     "area": "cross-section area in chord^2",
     "profile_drag": "Cd of the integral boundary-layer screening (needs reynolds)",
+    "target_cp_rms": "RMS deviation of Cp from the point's target_cp table over the stations it "
+                     "gives (inverse design by search; needs target_cp)",
     "critical_mach_deficit": "1 - the critical Mach number (minimising it maximises the "
                              "critical Mach number), at the largest peak suction of the point",
 }
@@ -109,6 +111,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                  0.0, 40.0),
         "water": Key("choice", "fresh", "fresh or sea water (density, for sigma)",
                      choices=("fresh", "sea")),
+        "target_cp": Key("str", None, "a target pressure table (CSV: x, surface, cp or q) for "
+                         "the target_cp_rms objective, relative to the study file"),
     },
     "objectives": {
         name: Key("float", None, f"weight of {name}: {text}", 0.0, 1e6)
@@ -275,6 +279,8 @@ class Point:
     mach: float | None = None
     compressibility: str = "karman-tsien"
     sigma: float | None = None  # cavitation number (given, or from speed, depth, temperature)
+    #: target Cp stations (x, upper, cp), read once at load, for the target_cp_rms objective
+    target: tuple | None = None
 
     @property
     def cls(self) -> tuple[float, ...]:
@@ -355,13 +361,15 @@ class Study:
 
 
 def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
-                read_start=None) -> Study:
+                read_start=None, read_target=None) -> Study:
     """Parse and validate a study's text; raises :class:`InputError` with one line.
 
     This layer reads no files: a ``shape.start`` that names a file is handed to
     ``read_start(file_name, base_dir)``, which returns ``(coefficients, te_angle_deg)`` or
     raises :class:`InputError`.  :func:`foilmap.store.studyfile.load_study` supplies the reader
     (section files and coordinate files, fitted); without one such a study is refused.
+    ``read_target(file_name, base_dir)`` likewise reads a point's ``target_cp`` table and
+    returns its stations as a tuple ``(x, upper, cp)``.
     """
     where = repr(source)
     try:
@@ -382,9 +390,18 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
         if p["cl_range"] is not None and not p["cl_range"][0] <= p["cl"] <= p["cl_range"][1]:
             _fail(where, f"point[{i}].cl = {p['cl']:g} is outside its cl_range "
                          f"{p['cl_range']!r}")
+        target = None
+        if p["target_cp"] is not None:
+            if read_target is None:
+                _fail(where, f"point[{i}].target_cp = {p['target_cp']!r} names a file; load "
+                             "the study with foilmap.load_study(path), which reads it")
+            try:
+                target = read_target(p["target_cp"], base_dir)
+            except InputError as exc:
+                _fail(where, f"point[{i}].target_cp = {p['target_cp']!r}: {exc}")
         points.append(Point(p["name"], p["cl"], None if p["cl_range"] is None
                             else tuple(p["cl_range"]), p["reynolds"], p["mach"],
-                            p["compressibility"], _point_sigma(where, i, p)))
+                            p["compressibility"], _point_sigma(where, i, p), target))
     if len({p.name for p in points}) != len(points):
         _fail(where, "point names must be distinct")
     obj = data.get("objectives")
@@ -394,6 +411,10 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
                   if v is not None}
     if not any(w > 0 for w in objectives.values()):
         _fail(where, "[objectives]: at least one weight must be positive")
+    if "target_cp_rms" in objectives:
+        for p in points:
+            if p.target is None:
+                _fail(where, f"objective target_cp_rms needs 'target_cp' at point {p.name!r}")
     for needs_re in ("stratford_margin", "profile_drag"):
         if needs_re in objectives:
             for p in points:

@@ -37,6 +37,8 @@ class FitResult:
     iterations : Theodorsen iterations used
     converged : whether the angle correction settled to the tolerance
     source_le : the given contour's leading edge (its chord line's start) in the map plane
+    singular_point : p_s, the chord-frame point of the given contour that the map plane's
+        z = −k corresponds to: the given frame is z = k (2 (zc − p_s)/(1 − p_s) − 1)
     """
 
     coefficients: np.ndarray
@@ -44,6 +46,13 @@ class FitResult:
     iterations: int
     converged: bool
     source_le: complex = 0j
+    singular_point: complex = 0j
+
+    def to_given_frame(self, z: np.ndarray) -> np.ndarray:
+        """Map-plane points in the chord frame of the contour that was fitted."""
+        k = 2.0 - self.te_angle / np.pi
+        p_s = self.singular_point
+        return (z / k + 1.0) * 0.5 * (1.0 - p_s) + p_s
 
     def truncated(self, n: int) -> np.ndarray:
         return self.coefficients[:n].copy()
@@ -158,7 +167,7 @@ def fit_coordinates(xy: np.ndarray, le: int, samples: int = 2048, tol: float = 1
     # the given chord frame maps to the map plane by z = k (2 (zc − p_s)/(1 − p_s) − 1): its
     # leading edge zc = 0 is here, and its trailing edge zc = 1 is the map's z = k
     return FitResult(a, tau, it, converged,
-                     complex(k * (2.0 * (source_le - p_s) / (1.0 - p_s) - 1.0)))
+                     complex(k * (2.0 * (source_le - p_s) / (1.0 - p_s) - 1.0)), complex(p_s))
 
 
 def contour_distances(fitted: np.ndarray, given: np.ndarray) -> np.ndarray:
@@ -196,17 +205,17 @@ class SectionFit:
     full_terms: int
     iterations: int
     converged: bool
-    fitted_xy: np.ndarray  # (m, 2) the truncated section's contour in the source's chord frame
+    fitted_xy: np.ndarray  # (m, 2) the truncated section's contour in the given contour's frame
     #: the source's leading edge in the fitted section's own chord frame: angles, Cl and Cm
     #: measured from the line from here to the trailing edge are the source's
     reference_le: complex = 0j
 
 
 def _mapped_contour(coefficients: np.ndarray, te_angle: float, points: int = 4001,
-                    source_le: complex | None = None):
-    """The section's contour, (points, 2), in its own chord frame or (given the source's
-    leading edge in the map plane) in the source's; with the status and the source's leading
-    edge in the own chord frame (0 when not given)."""
+                    fit: "FitResult | None" = None):
+    """The section's contour, (points, 2), in its own chord frame or (given the fit it came
+    from) in the chord frame of the fitted contour; with the status and the source's leading
+    edge in the own chord frame (0 without a fit)."""
     from foilmap.section.conformal import SectionSet
     from foilmap.section.evaluation import analyse
     from foilmap.section.geometry import coordinates
@@ -216,11 +225,9 @@ def _mapped_contour(coefficients: np.ndarray, te_angle: float, points: int = 400
                  singular_margin=1e-4, critical_margin=0.0)
     zc = coordinates(sec, an.frame, an.split, points, "map")[0]
     ref = 0j
-    if source_le is not None:
-        ref = complex(an.frame.to_chord(np.array([[source_le]]))[0, 0])
-        line = an.frame.rebased(np.array([ref]), sec.k)
-        z = zc / an.frame.scale[0] + an.frame.z_le[0]
-        zc = line.to_chord(z[None, :])[0]
+    if fit is not None:
+        ref = complex(an.frame.to_chord(np.array([[fit.source_le]]))[0, 0])
+        zc = fit.to_given_frame(zc / an.frame.scale[0] + an.frame.z_le[0])
     return np.column_stack([zc.real, zc.imag]), int(an.evaluation.status[0]), ref
 
 
@@ -241,10 +248,10 @@ def fit_section(xy: np.ndarray, le: int, n: int, samples: int = 2048,
     fit = fit_coordinates(xy, le, samples=samples, source_le=source_le)
     ref = dense_reference(xy, le)
     full = fit.coefficients[: min(len(fit.coefficients), 256)]
-    full_xy, _, _ = _mapped_contour(full, fit.te_angle, source_le=fit.source_le)
+    full_xy, _, _ = _mapped_contour(full, fit.te_angle, fit=fit)
     full_max, _ = contour_deviation(full_xy, ref)
     coeffs = fit.truncated(n)
-    fitted, _, reference_le = _mapped_contour(coeffs, fit.te_angle, source_le=fit.source_le)
+    fitted, _, reference_le = _mapped_contour(coeffs, fit.te_angle, fit=fit)
     mx, rms = contour_deviation(fitted, ref)
     return SectionFit(coeffs, fit.te_angle, mx, rms, full_max, len(full), fit.iterations,
                       fit.converged, fitted, reference_le)

@@ -14,7 +14,7 @@ from foilmap.design.study import Study
 from foilmap.design.study import parse_study as _parse_text
 from foilmap.errors import InputError, read_input_text
 
-__all__ = ["load_study", "parse_study", "read_start"]
+__all__ = ["load_study", "parse_study", "read_start", "read_target"]
 
 #: coefficient pairs fitted to a coordinates file given as a start (a run keeps its first N)
 START_FIT_PAIRS = 32
@@ -37,6 +37,17 @@ def read_start(name: str, base_dir: str) -> tuple:
     return fit.coefficients, math.degrees(fit.te_angle)
 
 
+def read_target(name: str, base_dir: str) -> tuple:
+    """A point's target Cp table as ``(x, upper, cp)`` tuples."""
+    from foilmap.store.targetfile import load_target
+
+    file = Path(base_dir) / name
+    if not file.is_file():
+        raise InputError(f"no such file (looked in {base_dir})")
+    t = load_target(file)
+    return (tuple(map(float, t.x)), tuple(map(bool, t.upper)), tuple(map(float, t.cp)))
+
+
 def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
     """Parse and validate a study's text, reading its start files.
 
@@ -46,7 +57,7 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) 
     if base_dir is None:
         src = Path(source)
         base_dir = str(src.parent.resolve()) if src.is_file() else str(Path.cwd())
-    return _parse_text(text, source, base_dir, read_start)
+    return _parse_text(text, source, base_dir, read_start, read_target)
 
 
 def load_study(path: str | Path) -> Study:
