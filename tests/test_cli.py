@@ -29,7 +29,7 @@ def test_evaluate_json_and_table(section_file, tmp_path):
     assert rows[0] == ["x", "y", "surface", "cp", "q"]
     surface = [r[2] for r in rows[1:]]
     cp, q = (np.array([float(r[i]) for r in rows[1:]]) for i in (3, 4))
-    assert len(rows) - 1 == 161
+    assert len(rows) - 1 == 201  # the default, as export
     assert surface[1] == "upper" and surface[-2] == "lower"
     np.testing.assert_allclose(cp, 1 - q**2, atol=1e-9)
     assert cp.min() == pytest.approx(rec["cp_min"], abs=2e-3)  # the table is sampled

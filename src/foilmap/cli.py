@@ -22,7 +22,18 @@ class _Parser(argparse.ArgumentParser):
     """argparse with errors on one line (no usage block) and exit code 2."""
 
     def error(self, message: str):  # noqa: D102 - argparse hook
+        if self.prog == "foilmap" and "required: COMMAND" in message:
+            # bare `foilmap`: the command table, then exit 2
+            self.print_help(sys.stderr)
+            raise SystemExit(EXIT_INPUT)
         raise InputError(f"{self.prog}: {message}")
+
+
+def _display(obj):
+    """JSON output rounded for display (no 1.9999999999999996, no -0.0)."""
+    from foilmap.report.text import display_values
+
+    return display_values(obj)
 
 
 def _finite(kind: str, lo: float | None = None, hi: float | None = None, open_lo=False):
@@ -148,6 +159,13 @@ def _check_ok(rec, an) -> None:
     from foilmap.section.status import Status, describe
 
     st = int(an.evaluation.status[0])
+    if st == Status.ABOVE_MAX_LIFT:
+        from foilmap.section.flow import max_ideal_cl
+
+        top = float(max_ideal_cl(an.sections, an.angle_frame)[0])
+        raise InputError(f"section {rec.name!r} cannot reach that Cl: the ideal flow's largest Cl "
+                         f"(at 90 degrees in the circle plane, far beyond any stall) is "
+                         f"{top:.4g}; ask for less")
     if st != Status.OK:
         raise InputError(f"section {rec.name!r} is not usable: {describe(st)} "
                          f"(status {Status(st).label})")
@@ -250,7 +268,9 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) 
                           progress=Progress.for_study(study, budget), engine=engine,
                           scheduler=scheduler)
     failed = [s for s in summaries if s.get("state") != "complete"]
-    print(f"study {study.name}: {len(summaries) - len(failed)} runs finished now, "
+    from foilmap.report.text import plural
+
+    print(f"study {study.name}: {plural(len(summaries) - len(failed), 'run')} finished now, "
           f"{len(failed)} failed; logs in {out / 'runs'}")
     for s in failed:
         print(f"  run {s['run']} failed: {s.get('error', 'unknown error')}")
@@ -286,7 +306,7 @@ def cmd_status(args) -> int:
     from foilmap.store.folder import StudyFolder
 
     st = StudyFolder(args.folder).status()
-    print(json.dumps(st, indent=1) if args.json else format_status(st))
+    print(json.dumps(_display(st), indent=1) if args.json else format_status(st))
     return EXIT_OK
 
 
@@ -397,6 +417,21 @@ def cmd_sweep(args) -> int:
     return EXIT_OK
 
 
+def cmd_report(args) -> int:
+    from foilmap.report.page import report_page
+    from foilmap.store.sectionfile import write_text_atomic
+
+    out = Path(args.output)
+    if out.suffix.lower() not in (".html", ".htm"):
+        raise InputError(f"report: output {str(out)!r} must end in .html")
+    if not out.parent.exists():
+        raise InputError(f"report: folder {str(out.parent)!r} does not exist")
+    write_text_atomic(out, report_page(args.folders))
+    print(f"report of {len(args.folders)} study folder(s) written to {out} (one self-contained "
+          "page: open it in a browser)")
+    return EXIT_OK
+
+
 def cmd_inverse(args) -> int:
     from foilmap.report.inverse import inverse_figure, inverse_record
     from foilmap.report.text import CAUTION
@@ -472,7 +507,7 @@ def cmd_fit(args) -> int:
         report = _png_target(args.report, "fit")
     coords = load_coordinates(args.coords)
     fit = fit_section(coords.xy, coords.le_index, args.n, source_le=coords.source_le)
-    print(f"read {coords.xy.shape[0]} points of {coords.name!r} ({coords.layout} layout"
+    print(f"read {coords.rows_read} points of {coords.name!r} ({coords.layout} layout"
           f"{', reversed to run over the upper surface first' if coords.reversed else ''})")
     if coords.te_gap > 0:
         print(f"open trailing edge: gap {coords.te_gap:.5f} chords, closed for the fit by a "
@@ -523,7 +558,7 @@ def cmd_fronts(args) -> int:
     png = _png_target(args.output, "fronts") if args.output else None
     fronts = collect_fronts(args.paths)
     res = compare_fronts(fronts, _reference(args.reference))
-    print(json.dumps(res, indent=1) if args.json else format_fronts(res))
+    print(json.dumps(_display(res), indent=1) if args.json else format_fronts(res))
     if args.csv:
         write_text_atomic(args.csv, fronts_csv(fronts, res))
         if not args.json:
@@ -578,7 +613,7 @@ def cmd_screen(args) -> int:
            "alpha_deg": math.degrees(an.evaluation.alpha[0]), **res.record(0),
            "drag_station_x": DRAG_STATION, "note": SCREEN_NOTE, "caution": CAUTION}
     if args.json:
-        print(json.dumps(out, indent=2))
+        print(json.dumps(_display(out), indent=2))
         return EXIT_OK
     def fx(v):
         return "-" if v is None else f"{v:.4f}"
@@ -693,8 +728,8 @@ def build_parser() -> argparse.ArgumentParser:
     _add_conditions(e)
     e.add_argument("--json", action="store_true", help="print one JSON object")
     e.add_argument("--table", metavar="FILE.csv", help="also write x, y, surface, cp, q per point")
-    e.add_argument("--table-points", type=_int_range("table points", 5, 100001), default=161,
-                   metavar="N", help="points in the --table file (default 161, cosine spacing)")
+    e.add_argument("--table-points", type=_int_range("table points", 5, 100001), default=201,
+                   metavar="N", help="points in the --table file (default 201, cosine spacing)")
     e.set_defaults(func=cmd_evaluate)
 
     sw = sub.add_parser("sweep", help="the operating range: figures over angles or Cl values")
@@ -710,6 +745,12 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("-o", "--output", metavar="FILE.png",
                     help="also draw Cl, Cm and the minimum-pressure envelope")
     sw.set_defaults(func=cmd_sweep)
+
+    rp = sub.add_parser("report", help="one self-contained HTML page of one or more studies")
+    rp.add_argument("folders", nargs="+", metavar="DIR", help="study folders (side by side)")
+    rp.add_argument("-o", "--output", required=True, metavar="FILE.html",
+                    help="the page to write")
+    rp.set_defaults(func=cmd_report)
 
     iv = sub.add_parser("inverse", help="the section whose ideal-flow Cp is a target table")
     iv.add_argument("target", help="target CSV: columns x, surface, and cp or q (as evaluate "
@@ -731,8 +772,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     c = sub.add_parser("coords", help="write coordinates (two columns, TE-upper-LE-lower-TE)")
     c.add_argument("section", help="section file (TOML)")
-    c.add_argument("-n", "--points", type=_int_range("points", 5, 100001), default=161,
-                   help="number of points (default 161)")
+    c.add_argument("-n", "--points", type=_int_range("points", 5, 100001), default=201,
+                   help="number of points (default 201, as export)")
     c.add_argument("--spacing", choices=("cosine", "map"), default="cosine",
                    help="cosine in x on each surface, or uniform in circle angle (the map's own)")
     c.add_argument("-o", "--output", metavar="FILE", help="output file (default: standard output)")
@@ -768,12 +809,14 @@ def build_parser() -> argparse.ArgumentParser:
     b = sub.add_parser("best", help="the best feasible design as a section file")
     b.add_argument("folder", help="study folder")
     b.add_argument("--run", metavar="ID", help="one run's best (default: the whole study's)")
-    b.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
+    b.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                   help="section file to write")
     b.set_defaults(func=cmd_best)
 
     pr = sub.add_parser("plot-run", help="PNG: convergence of every run and the best sections")
     pr.add_argument("folder", help="study folder")
-    pr.add_argument("-o", "--output", required=True, metavar="FILE.png")
+    pr.add_argument("-o", "--output", required=True, metavar="FILE.png",
+                    help="PNG to write")
     pr.set_defaults(func=cmd_plot_run)
 
     d = sub.add_parser("demo", help="a small real study on built-in defaults (under 2 minutes)")
@@ -784,18 +827,20 @@ def build_parser() -> argparse.ArgumentParser:
 
     nc = sub.add_parser("naca", help="coordinates of a NACA four-digit section (published formula)")
     nc.add_argument("code", help="four digits, for example 2412")
-    nc.add_argument("-n", "--points", type=_int_range("points", 11, 100001), default=161,
-                    help="number of points (default 161, cosine spacing)")
+    nc.add_argument("-n", "--points", type=_int_range("points", 11, 100001), default=201,
+                    help="number of points (default 201, cosine spacing)")
     nc.add_argument("--open-te", action="store_true",
                     help="the original open trailing edge (-0.1015) instead of the closed one")
-    nc.add_argument("-o", "--output", required=True, metavar="FILE")
+    nc.add_argument("-o", "--output", required=True, metavar="FILE",
+                    help="coordinates file to write (two columns)")
     nc.set_defaults(func=cmd_naca)
 
     ft = sub.add_parser("fit", help="conformal-map coefficients of a coordinates file")
     ft.add_argument("coords", help="coordinates file (two columns; see docs/coordinates.md)")
     ft.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24, metavar="N",
                     help="coefficients to keep (default 24)")
-    ft.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
+    ft.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                    help="section file to write")
     ft.add_argument("--report", metavar="FILE.png",
                     help="overlay of given and fitted contours with the deviation along the chord")
     ft.set_defaults(func=cmd_fit)
@@ -816,7 +861,8 @@ def build_parser() -> argparse.ArgumentParser:
     how.add_argument("--knee", action="store_true", help="the knee of the front")
     how.add_argument("--index", metavar="K_OR_ID", help="position in the merged front, or RUN#EVAL")
     pk.add_argument("--run", metavar="ID", help="only this run's front")
-    pk.add_argument("-o", "--output", required=True, metavar="SECTION.toml")
+    pk.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                    help="section file to write")
     pk.set_defaults(func=cmd_pick)
 
     sc = sub.add_parser("screen", help="integral boundary-layer screening: transition, "
@@ -833,7 +879,8 @@ def build_parser() -> argparse.ArgumentParser:
     g = ex.add_mutually_exclusive_group()
     g.add_argument("--cl", type=_finite("lift coefficient", -20.0, 20.0), metavar="CL",
                    help="operating point (default: the design Cl of the run)")
-    g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG")
+    g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG",
+                   help="export at this angle of attack, degrees (instead of the design Cl)")
     w = ex.add_mutually_exclusive_group()
     w.add_argument("--best", action="store_true", help="the best feasible design of the folder")
     w.add_argument("--ids", metavar="ID,...", help="front designs by id (RUN#EVAL, see fronts)")
@@ -841,8 +888,10 @@ def build_parser() -> argparse.ArgumentParser:
     ex.add_argument("--run", metavar="ID", help="with --best: one run's best")
     ex.add_argument("--re", type=_finite("Reynolds number", 1e4, 1e9), metavar="RE",
                     help="Reynolds number for the boundary-layer screening in design.json")
-    ex.add_argument("--points", type=_int_range("points", 11, 100001), default=201)
-    ex.add_argument("--spacing", choices=("cosine", "map", "curvature"), default="cosine")
+    ex.add_argument("--points", type=_int_range("points", 11, 100001), default=201,
+                    help="coordinate points per design (default 201)")
+    ex.add_argument("--spacing", choices=("cosine", "map", "curvature"), default="cosine",
+                    help="point spacing: cosine in x, the map's own, or by curvature")
     ex.add_argument("--te-thickness", type=_finite("trailing-edge thickness", 0.0, 0.05),
                     default=0.0, metavar="T", help="open the trailing edge to T chords")
     ex.add_argument("--mesh", action="store_true", help="also a 2-D gmsh mesh (mesh extra)")
@@ -850,7 +899,8 @@ def build_parser() -> argparse.ArgumentParser:
                     metavar="CHORDS", help="far-field radius of the mesh")
     ex.add_argument("--first-cell", type=_finite("first cell height", 1e-8, 1e-2),
                     default=1e-5, metavar="H", help="first cell height at the wall, chords")
-    ex.add_argument("-o", "--output", required=True, metavar="DIR")
+    ex.add_argument("-o", "--output", required=True, metavar="DIR",
+                    help="folder to create for the bundle (new or empty)")
     ex.set_defaults(func=cmd_export)
     return p
 

@@ -345,7 +345,7 @@ def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarr
     return speed_on_circle(fl, phi, map_at(sec, np.exp(1j * phi)).dz)
 
 
-def surface_distribution(analysis: Analysis, points: int = 161, spacing: str = "cosine"):
+def surface_distribution(analysis: Analysis, points: int = 201, spacing: str = "cosine"):
     """Surface points with their speed ratio, from the TE over the upper surface and back.
 
     Returns ``(zc, upper, q)``, shapes (B, points): chord-frame points (as in

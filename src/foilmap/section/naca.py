@@ -27,16 +27,28 @@ _OPEN = -0.1015
 _CLOSED = -0.1036
 
 
+#: thickness (percent of chord) the four-digit formula is used for: the family was published
+#: from 6 to 25 %; beyond about 30 % the formula's nose and trailing edge lose their shape
+#: (common practice)
+THICKNESS_RANGE = (1, 30)
+
+
 def parse_naca4(code: str) -> tuple[float, float, float]:
     """(m, p, t) of a four-digit code such as '2412' (m = 0.02, p = 0.4, t = 0.12)."""
     c = code.strip().upper().removeprefix("NACA").strip()
     if not re.fullmatch(r"\d{4}", c):
         raise InputError(f"NACA code {code!r} is not four digits (for example 0012 or 2412)")
     m, p, t = int(c[0]) / 100.0, int(c[1]) / 10.0, int(c[2:]) / 100.0
-    if t <= 0:
-        raise InputError(f"NACA code {code!r} has zero thickness")
+    lo, hi = THICKNESS_RANGE
+    if not lo <= int(c[2:]) <= hi:
+        raise InputError(f"NACA code {code!r}: thickness {int(c[2:])} % is outside the formula's "
+                         f"sensible range, {lo} to {hi} % (the last two digits)")
     if m > 0 and p == 0:
-        raise InputError(f"NACA code {code!r} has camber but no camber position")
+        raise InputError(f"NACA code {code!r} has camber but no camber position (the second "
+                         "digit, 1 to 9, tenths of the chord)")
+    if m == 0 and p > 0:
+        raise InputError(f"NACA code {code!r} has a camber position but no camber (a symmetric "
+                         f"section is 00{c[2:]})")
     return m, p, t
 
 
@@ -57,7 +69,7 @@ def naca4_surfaces(m: float, p: float, t: float, x: np.ndarray, closed_te: bool 
     return x - yt * np.sin(th), yc + yt * np.cos(th), x + yt * np.sin(th), yc - yt * np.cos(th)
 
 
-def naca4_coordinates(code: str, points: int = 161, closed_te: bool = True) -> np.ndarray:
+def naca4_coordinates(code: str, points: int = 201, closed_te: bool = True) -> np.ndarray:
     """Coordinates TE → upper → LE → lower → TE with cosine spacing, shape (points, 2).
 
     The points are in the formula's own frame (chord line from (0, 0) to (1, 0)); ``points`` of

@@ -64,6 +64,7 @@ class Coordinates:
     te_gap: float
     closing_shift: float
     source_le: complex = 0j
+    rows_read: int = 0  # points as the file gives them (before a leading edge is inserted)
 
     @property
     def le_index(self) -> int:
@@ -122,10 +123,13 @@ def parse_coordinates(text: str, source: str = "<text>") -> Coordinates:
         body = rows[1:]
         up = np.array([[r[1], r[2]] for r in body[:nu]])
         lo = np.array([[r[1], r[2]] for r in body[nu:]])
-        lines = [r[0] for r in body]
+        up_lines = [r[0] for r in body[:nu]]
+        lo_lines = [r[0] for r in body[nu:]]
         if np.allclose(up[0], lo[0]):
             lo = lo[1:]
+            lo_lines = lo_lines[1:]
         xy = np.concatenate([up[::-1], lo])
+        lines = up_lines[::-1] + lo_lines
     else:
         xy = np.array([[r[1], r[2]] for r in rows])
         lines = [r[0] for r in rows]
@@ -139,7 +143,27 @@ def parse_coordinates(text: str, source: str = "<text>") -> Coordinates:
         i = int(dup[0])
         _fail(source, f"duplicate point ({xy[i, 0]:g}, {xy[i, 1]:g}) at rows {i + 1} and {i + 2}"
                       + (f" (line {lines[i + 1]})" if i + 1 < len(lines) else ""))
-    return normalise_loop(xy, name or Path(source).stem, layout, source)
+    _check_order(xy, lines, source)
+    from dataclasses import replace
+
+    return replace(normalise_loop(xy, name or Path(source).stem, layout, source),
+                   rows_read=int(len(rows) - (1 if layout.endswith("surfaces)")
+                                              or layout == "surfaces" else 0)))
+
+
+def _check_order(xy: np.ndarray, lines: list, source: str) -> None:
+    """Along the loop x falls from the trailing edge to the leading edge (the least x) and
+    rises back: a point out of that order is named with its line."""
+    j = int(np.argmin(xy[:, 0]))
+    dx = np.diff(xy[:, 0])
+    bad_up = np.flatnonzero(dx[:j] > 0)
+    bad_lo = np.flatnonzero(dx[j:] < 0) + j
+    for bad, row_of in ((bad_up, lambda i: i + 1), (bad_lo, lambda i: i + 1)):
+        if bad.size:
+            k = row_of(int(bad[0]))
+            _fail(source, f"line {lines[k]}: the point ({xy[k, 0]:g}, {xy[k, 1]:g}) is out of "
+                          "order (x must fall from the trailing edge to the leading edge and "
+                          "rise back to the trailing edge); correct or remove that line")
 
 
 def _self_intersects(xy: np.ndarray, block: int = 256) -> int | None:

@@ -78,12 +78,28 @@ def _is_number(v) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
+def _looks_like_coordinates(text: str) -> bool:
+    """Whether most lines hold two numbers (a coordinates file given where a section is due)."""
+    rows = [ln.replace(",", " ").split() for ln in text.splitlines() if ln.strip()]
+    numeric = 0
+    for r in rows:
+        try:
+            [float(v) for v in r[:2]]
+            numeric += len(r) >= 2
+        except ValueError:
+            pass
+    return len(rows) >= 5 and numeric >= 0.8 * len(rows)
+
+
 def parse_section(text: str, source: str = "<text>") -> SectionRecord:
     """Parse and validate the text of a section file."""
     where = f"section file {source!r}"
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
+        if _looks_like_coordinates(text):
+            raise InputError(f"{where} holds coordinates, not a section: fit them first with "
+                             f"foilmap fit {source} -n 24 -o SECTION.toml") from None
         raise InputError(f"{where} is not valid TOML: {exc}") from None
     for key in data:
         if key not in _TOP_KEYS:
