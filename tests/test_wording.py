@@ -1,0 +1,186 @@
+"""What people read: names, defaults, wording, rounding, and the bad-input holes found in use."""
+
+from __future__ import annotations
+
+import argparse
+import io
+import json
+
+import numpy as np
+import pytest
+from conftest import ROOT, cli, small_study
+
+EXAMPLE = ROOT / "studies" / "example-section.toml"
+
+
+def test_point_counts_default_to_201(tmp_path):
+    r = cli("coords", EXAMPLE)
+    assert len([ln for ln in r.stdout.splitlines()[1:] if ln.strip()]) == 201
+    r = cli("naca", "2412", "-o", tmp_path / "n.dat")
+    assert len((tmp_path / "n.dat").read_text().splitlines()) == 1 + 201
+    r = cli("evaluate", EXAMPLE, "--cl", "0.5", "--table", tmp_path / "t.csv")
+    rows = [ln for ln in (tmp_path / "t.csv").read_text().splitlines()
+            if ln and not ln.startswith("#")]
+    assert len(rows) == 1 + 201
+
+
+def test_old_constraint_keys_name_the_new_ones(tmp_path):
+    for old, new in (("min_thickness = 0.1", "constraints.thickness = [low, high]"),
+                     ("max_thickness = 0.2", "constraints.thickness = [low, high]"),
+                     ("min_te_angle_deg = 8.0", "constraints.te_angle_deg = [low, high]"),
+                     ("min_thickness_at = [[0.9, 0.02]]",
+                      "constraints.station_thickness = [[x, t], ...]")):
+        (tmp_path / "s.toml").write_text(small_study("old", [1], 100, constraints=old))
+        r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out")
+        assert r.returncode == 2 and new in r.stderr, r.stderr
+        assert len(r.stderr.strip().splitlines()) == 1
+
+
+def test_progress_line_says_the_share_is_this_generations():
+    from foilmap.report.progress import Progress
+
+    buf = io.StringIO()
+    p = Progress(total_runs=1, total_evals=100, stream=buf, tty=False, interval=0.0)
+    p.update({"run": "p.s1", "generation": 3, "evaluations": 36, "best": 0.894,
+              "feasible": 0.0, "sigma": 0.1})
+    line = buf.getvalue()
+    assert "best feasible so far 0.894" in line and "0% of this generation feasible" in line
+    assert "feasible 0%" not in line
+
+
+def test_ideal_lift_limit_is_named_for_what_it_is():
+    r = cli("evaluate", EXAMPLE, "--cl", "0.5")
+    assert "max ideal Cl" not in r.stdout
+    assert "Cl limit of the ideal flow (not stall)" in r.stdout
+    r = cli("evaluate", EXAMPLE, "--cl", "9")
+    assert r.returncode == 2 and "largest Cl" in r.stderr and "6.901" in r.stderr
+
+
+def test_display_rounding():
+    from foilmap.report.text import display_values, format_number
+
+    assert format_number(-0.00001, 3) == "0.000"
+    assert format_number(-0.0004, 3) == "0.000"
+    assert format_number(-0.0006, 3) == "-0.001"
+    out = display_values({"a": 1.9999999999999996, "b": -0.0, "c": [0.1 + 0.2],
+                          "d": float("nan"), "e": "text"})
+    assert out["a"] == 2.0 and str(out["b"]) == "0.0" and out["c"] == [0.3]
+    assert out["e"] == "text" and out["d"] != out["d"]
+    r = cli("evaluate", EXAMPLE, "--alpha", "0", "--json")
+    assert "9999999" not in r.stdout and "-0.0," not in r.stdout
+
+
+def test_plural_runs(tmp_path):
+    (tmp_path / "s.toml").write_text(small_study("one", [1], 60))
+    r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out", "--workers", "1")
+    assert r.returncode == 0, r.stderr
+    assert "1 run finished now" in r.stdout and "1 runs" not in r.stdout
+
+
+def test_fit_counts_the_points_of_the_file(tmp_path):
+    cli("naca", "2412", "-n", "41", "-o", tmp_path / "n.dat")
+    r = cli("fit", tmp_path / "n.dat", "-n", "8", "-o", tmp_path / "n.toml")
+    assert "read 41 points" in r.stdout
+
+
+def test_out_of_order_point_names_its_line(tmp_path):
+    cli("naca", "2412", "-n", "41", "-o", tmp_path / "n.dat")
+    lines = (tmp_path / "n.dat").read_text().splitlines()
+    lines[5], lines[7] = lines[7], lines[5]
+    (tmp_path / "bad.dat").write_text("\n".join(lines) + "\n")
+    r = cli("fit", tmp_path / "bad.dat", "-n", "8", "-o", tmp_path / "b.toml")
+    assert r.returncode == 2 and "line 7" in r.stderr and "out of order" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1
+    assert not (tmp_path / "b.toml").exists()
+    # the same file as a study's start: one line, exit 2
+    (tmp_path / "s.toml").write_text(small_study("st", [1], 60).replace(
+        "coefficients = 4", 'coefficients = 4\nstart = "bad.dat"'))
+    r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out")
+    assert r.returncode == 2 and "out of order" in r.stderr
+
+
+@pytest.mark.parametrize("code", ["9999", "0150", "2012", "0412", "12", "abcd"])
+def test_naca_codes_outside_the_formula(tmp_path, code):
+    r = cli("naca", code, "-o", tmp_path / "n.dat")
+    assert r.returncode == 2 and len(r.stderr.strip().splitlines()) == 1, r.stderr
+    assert not (tmp_path / "n.dat").exists()
+    if code in ("9999", "0150"):
+        assert "1 to 30 %" in r.stderr
+
+
+def test_contradictory_constraints_name_both_keys(tmp_path):
+    (tmp_path / "s.toml").write_text(small_study(
+        "c", [1], 60, constraints="thickness = [0.10, 0.12]\nstation_thickness = [[0.3, 0.15]]"))
+    r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out")
+    assert r.returncode == 2
+    assert "constraints.station_thickness" in r.stderr and "constraints.thickness" in r.stderr
+    (tmp_path / "s.toml").write_text(small_study("c", [1], 60,
+                                                 constraints="thickness = [0.2, 0.1]"))
+    r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out")
+    assert r.returncode == 2 and "low <= high" in r.stderr
+
+
+def test_evaluate_on_coordinates_suggests_fit(tmp_path):
+    cli("naca", "0012", "-o", tmp_path / "n.dat")
+    r = cli("evaluate", tmp_path / "n.dat", "--cl", "0.3")
+    assert r.returncode == 2 and "foilmap fit" in r.stderr and "TOML" not in r.stderr
+
+
+def test_bare_command_prints_the_table():
+    r = cli()
+    assert r.returncode == 2
+    for cmd in ("evaluate", "sweep", "inverse", "report", "run", "export"):
+        assert cmd in r.stderr
+    assert "arguments are required" not in r.stderr
+
+
+def test_every_option_has_help():
+    from foilmap.cli import build_parser
+
+    missing = []
+    parser = build_parser()
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            for name, sub in action.choices.items():
+                missing += [(name, a.dest) for a in sub._actions
+                            if not isinstance(a, argparse._HelpAction) and not a.help]
+        elif not isinstance(action, argparse._HelpAction) and not action.help:
+            missing.append(("foilmap", action.dest))
+    assert missing == []
+
+
+def test_demo_ends_with_the_designs_figures(tmp_path):
+    r = cli("demo", "--out", tmp_path / "demo", "--workers", "2", timeout=600)
+    assert r.returncode == 0, r.stderr
+    line = next(ln for ln in r.stdout.splitlines() if ln.startswith("demo finished"))
+    for word in ("peak suction", "recovery severity", "thickness", "weighted objective"):
+        assert word in line, line
+
+
+def test_export_all_writes_the_merged_front(tmp_path):
+    text = small_study("mo", [1, 2], 240, objectives="peak_suction = 1.0\nseverity = 1.0",
+                       extra="[fronts]\nreference_point = [3.0, 3.0]\n")
+    text = text.replace("[search]\n", '[search]\nmethod = "comocma"\nkernels = 4\n')
+    (tmp_path / "s.toml").write_text(text)
+    r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out", "--workers", "2")
+    assert r.returncode == 0, r.stderr
+    import foilmap
+
+    merged = foilmap.open_results(tmp_path / "out").front()
+    r = cli("export", tmp_path / "out", "--all", "-o", tmp_path / "bundle", timeout=600)
+    assert r.returncode == 0, r.stderr
+    folders = [p for p in (tmp_path / "bundle").iterdir() if p.is_dir()]
+    assert len(folders) == len(merged) > 0
+    assert "exporting" in r.stderr  # progress on long work
+    summary = (tmp_path / "bundle" / "summary.csv").read_text()
+    ids = {d.id.replace("#", "-") for d in merged}
+    assert all(any(i in line for line in summary.splitlines()) for i in ids)
+    assert np.isfinite(len(ids))
+
+
+def test_status_json_is_rounded(tmp_path):
+    (tmp_path / "s.toml").write_text(small_study("r", [1], 60))
+    cli("run", tmp_path / "s.toml", "--out", tmp_path / "out", "--workers", "1")
+    r = cli("status", tmp_path / "out", "--json")
+    st = json.loads(r.stdout)
+    assert st["runs"][0]["state"] == "complete"
