@@ -263,7 +263,7 @@ def test_fronts_and_pick_commands(tmp_path):
     ("reference", "runs use different reference points"),
     ("beyond", "lie beyond the reference point"),
     ("badref", "--reference '1,x' is not a comma-separated list"),
-    ("pickname", "--nearest needs a value for each objective"),
+    ("pickname", "the nearest design needs a value for each objective"),
 ])
 def test_fronts_refusals(tmp_path, case, message):
     a, _ = run_folder(tmp_path, "a", MO_STUDY.replace("seeds = [1, 2]", "seeds = [1]")

@@ -603,7 +603,7 @@ SCREEN_NOTE = ("First screening by integral boundary-layer methods (Thwaites, Mi
 
 
 def cmd_screen(args) -> int:
-    from foilmap.report.text import CAUTION
+    from foilmap.report.text import CAUTION, format_screen
     from foilmap.section.screening import DRAG_STATION, screen_analysis
 
     rec, an = _analyse(args, ())
@@ -615,19 +615,7 @@ def cmd_screen(args) -> int:
     if args.json:
         print(json.dumps(_display(out), indent=2))
         return EXIT_OK
-    def fx(v):
-        return "-" if v is None else f"{v:.4f}"
-    print(f"foilmap screen | {rec.name} | Cl {out['cl']:.4f} at {out['alpha_deg']:.3f} deg | "
-          f"Re {args.re:.3g}")
-    cd_text = fx(out["cd"]) if out["cd"] is not None else (
-        "not estimated: turbulent separation (the method does not hold past it)")
-    print(f"  profile drag Cd (Squire-Young at x/c = {DRAG_STATION})   {cd_text}")
-    for side in ("upper", "lower"):
-        r = out[side]
-        how = " (at laminar separation)" if r["transition_by_laminar_separation"] else ""
-        print(f"  {side:<6} transition x/c {fx(r['x_transition'])}{how}; laminar separation "
-              f"{fx(r['x_laminar_separation'])}; turbulent separation "
-              f"{fx(r['x_turbulent_separation'])}")
+    print(format_screen(out, rec.name, args.re))
     print(SCREEN_NOTE)
     print(CAUTION)
     return EXIT_OK

@@ -66,7 +66,7 @@ def compare_fronts(fronts: list[RunFront], reference=None) -> dict:
             allp = np.concatenate([g.objectives for g in fronts if g.objectives.size])
             hi = allp.max(axis=0)
             suggest = ",".join(f"{v:.3g}" for v in np.where(hi > 0, 1.1 * hi, 0.9 * hi + 0.1))
-            raise InputError(f"run {f.run}: {exc} (for example --reference {suggest})") from None
+            raise InputError(f"run {f.run}: {exc} (for example a reference point {suggest})") from None
         runs.append({
             "run": f.run, "folder": f.folder, "group": f.group, "reference_point": ref.tolist(),
             "hypervolume": hv,
@@ -218,10 +218,10 @@ def pick_design(folder: Path, *, nearest: dict | None = None, knee: bool = False
         try:
             k = int(index)
         except ValueError:
-            raise InputError(f"--index {index!r} is neither a position nor an id RUN#EVAL") \
+            raise InputError(f"design index {index!r} is neither a position nor an id RUN#EVAL") \
                 from None
         if not 0 <= k < len(ids):
-            raise InputError(f"--index {k} is out of range (the merged front has "
+            raise InputError(f"design index {k} is out of range (the merged front has "
                              f"{len(ids)} designs, 0 to {len(ids) - 1})")
         j = k
     elif knee:
@@ -230,7 +230,7 @@ def pick_design(folder: Path, *, nearest: dict | None = None, knee: bool = False
         missing = [n for n in names if n not in nearest]
         extra = [n for n in nearest if n not in names]
         if missing or extra:
-            raise InputError(f"--nearest needs a value for each objective ({', '.join(names)}); "
+            raise InputError(f"the nearest design needs a value for each objective ({', '.join(names)}); "
                              + (f"missing {', '.join(missing)}" if missing else
                                 f"unknown {', '.join(extra)}"))
         target = np.array([nearest[n] for n in names])

@@ -22,7 +22,7 @@ def check_gmsh() -> None:
     try:
         import gmsh  # noqa: F401
     except ImportError:
-        raise InputError("--mesh needs the gmsh package: install the mesh extra with "
+        raise InputError("meshing needs the gmsh package: install the mesh extra with "
                          "python -m pip install -e \".[mesh]\"") from None
 
 

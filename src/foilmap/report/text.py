@@ -18,6 +18,7 @@ __all__ = [
     "evaluation_record",
     "format_summary",
     "format_number",
+    "format_screen",
     "display_values",
     "plural",
     "surface_table_csv",
@@ -178,6 +179,25 @@ def format_summary(rec: dict, proxies: tuple[str, ...] = ("severity",)) -> str:
     out.append(CONVENTIONS)
     out.append(CAUTION)
     return "\n".join(out)
+
+
+def format_screen(out: dict, name: str, reynolds: float) -> str:
+    """The text of ``foilmap screen`` from its record."""
+    def fx(v):
+        return "-" if v is None else f"{v:.4f}"
+
+    lines = [f"foilmap screen | {name} | Cl {out['cl']:.4f} at {out['alpha_deg']:.3f} deg | "
+             f"Re {reynolds:.3g}"]
+    cd_text = fx(out["cd"]) if out["cd"] is not None else (
+        "not estimated: turbulent separation (the method does not hold past it)")
+    lines.append(f"  profile drag Cd (Squire-Young at x/c = {out['drag_station_x']})   {cd_text}")
+    for side in ("upper", "lower"):
+        r = out[side]
+        how = " (at laminar separation)" if r["transition_by_laminar_separation"] else ""
+        lines.append(f"  {side:<6} transition x/c {fx(r['x_transition'])}{how}; laminar "
+                     f"separation {fx(r['x_laminar_separation'])}; turbulent separation "
+                     f"{fx(r['x_turbulent_separation'])}")
+    return "\n".join(lines)
 
 
 def surface_table_csv(zc: np.ndarray, upper: np.ndarray, q: np.ndarray, name: str) -> str:

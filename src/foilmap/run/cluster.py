@@ -34,7 +34,7 @@ class DaskBackend:
             import dask
             from distributed import Client, LocalCluster
         except ImportError:
-            raise InputError("--engine dask needs Dask: install the cluster extra with "
+            raise InputError("the dask engine needs Dask: install the cluster extra with "
                              "python -m pip install -e \".[cluster]\"") from None
         dask.config.set({"distributed.scheduler.allowed-failures": ALLOWED_FAILURES})
         self.cluster = None

@@ -80,7 +80,7 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     scheduler = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
     workers = workers or study.engine["workers"] or None
     if scheduler and engine != "dask":
-        raise InputError("a scheduler address needs the dask engine (--engine dask, or "
+        raise InputError("a scheduler address needs the dask engine (engine = dask, or "
                          "kind = \"dask\" in [engine])")
     out = Path(out)
     # a budget set on the study object is recorded like --budget, so that resume keeps it

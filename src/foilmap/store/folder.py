@@ -93,13 +93,13 @@ class StudyFolder:
         if sfile.exists():
             if sfile.read_text(encoding="utf-8") != study.text:
                 raise InputError(f"folder {str(self.path)!r} holds a different study "
-                                 f"({STUDY_NAME} differs); choose another --out or remove the "
-                                 "folder")
+                                 f"({STUDY_NAME} differs); choose another output folder or remove "
+                                 "this one")
             old = self._options()
             if budget is not None and old.get("budget") not in (None, budget):
-                raise InputError(f"folder {str(self.path)!r} was started with --budget "
-                                 f"{old['budget']}; resume it with the same budget or choose "
-                                 "another --out")
+                raise InputError(f"folder {str(self.path)!r} was started with a budget of "
+                                 f"{old['budget']} evaluations per run; resume it with the same "
+                                 "budget or choose another output folder")
             budget = old.get("budget", budget)
         else:
             write_text_atomic(sfile, study.text)
