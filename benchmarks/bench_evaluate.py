@@ -66,7 +66,7 @@ def main() -> None:
     ap.add_argument("--repeats", type=int, default=7)
     args = ap.parse_args()
 
-    from foilmap import _compiled
+    from foilmap.section import _compiled
 
     _compiled.warm_up()
     cls = np.array([0.5, 0.3, 0.7])

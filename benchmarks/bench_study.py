@@ -90,7 +90,7 @@ def main() -> None:
                     "each study's own)")
     args = ap.parse_args()
     t0 = time.perf_counter()
-    subprocess.run([sys.executable, "-c", "from foilmap import _compiled; _compiled.warm_up()"],
+    subprocess.run([sys.executable, "-c", "from foilmap.section import _compiled; _compiled.warm_up()"],
                    check=True)
     compile_s = time.perf_counter() - t0
     rows = []
