@@ -81,7 +81,7 @@ def test_plot_writes_png(section_file, tmp_path):
         (["evaluate", "{missing}", "--cl", "0.5"], "cannot read section file"),
         (["evaluate", "{bad}", "--cl", "0.5"], "'section.te_angle_deg' = 99.0 is not allowed"),
         (["evaluate", "{sec}", "--cl", "40"], "lift coefficient '40' is out of range"),
-        (["evaluate", "{sec}", "--cl", "15"], "above the section's maximum ideal lift"),
+        (["evaluate", "{sec}", "--cl", "15"], "cannot reach that Cl: the ideal flow's largest Cl"),
         (["coords", "{sec}", "-n", "2"], "points 2 is out of range"),
         (["coords", "{sec}", "--spacing", "random"], "invalid choice: 'random'"),
         (["plot", "{sec}", "--cl", "0.5", "-o", "{tmp}/x.jpg"], "must end in .png"),
