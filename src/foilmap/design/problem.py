@@ -170,7 +170,6 @@ class Problem:
         status = ev.status.copy()
         values = {
             "peak_suction": self.corrected_peak(peak),
-            "critical_mach_deficit": 1.0 - self.critical_mach(peak),
             "severity": ev.severity,
             "stratford_margin": ev.stratford_margin,
             "laminar_deficit": 1.0 - np.where(np.isnan(ev.thwaites_sep_x_upper),
@@ -179,6 +178,8 @@ class Problem:
             "area": ev.area,
             **extra,
         }
+        if "critical_mach_deficit" in self.objective_names:  # a root per candidate: on demand
+            values["critical_mach_deficit"] = 1.0 - self.critical_mach(peak)
         obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
         weights = np.array([w for _, w in self.objectives])
         g = self._constraints(ev, st, peak)
