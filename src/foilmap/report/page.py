@@ -161,9 +161,10 @@ def _designs(folder: StudyFolder) -> tuple[str, list[str]]:
     from foilmap.section.evaluation import analyse, surface_distribution
 
     designs = _chosen_designs(folder)
-    warnings = []
     if not designs:
-        return "<h3>Best designs</h3><p>No feasible design yet.</p>", warnings
+        return ("<h3>Best designs</h3><p>No feasible design yet.</p>",
+                [f"no run of study {folder.study.name} has a feasible design yet"])
+    warnings = []
     colours = ["#1b4f72", "#b9770e", "#1e8449", "#7d3c98"]
     shape = Figure(figsize=(10, 3.0))
     ax = shape.add_subplot(1, 1, 1)
@@ -255,8 +256,6 @@ def _study_section(folder: StudyFolder) -> str:
         warnings.append(str(exc))
     designs, dw = _designs(folder)
     warnings += dw
-    if not _chosen_designs(folder):
-        warnings.append(f"no run of study {study.name} has a feasible design yet")
     parts.append(designs)
     if warnings:
         parts.insert(1, "<h3>Warnings</h3>" + "".join(

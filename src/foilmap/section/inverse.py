@@ -42,8 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["Target", "InverseResult", "InverseSection", "inverse_design", "inverse_section",
-           "lighthill_contour",
-           "lighthill_speed", "lighthill_coefficients", "closure_residuals"]
+           "lighthill_contour", "lighthill_speed", "section_coefficients"]
 
 #: Gauss–Legendre nodes per grid interval of the contour integration
 _GAUSS = np.polynomial.legendre.leggauss(6)
@@ -171,22 +170,6 @@ def lighthill_speed(c: np.ndarray, a: float, alpha: float, phi: np.ndarray) -> n
     return np.exp(lnq)
 
 
-def lighthill_coefficients(p: np.ndarray, terms: int) -> np.ndarray:
-    """C₀ … C_{terms−1} of P(φ) = Re Σ Cₙ e^{−inφ} sampled at φⱼ = 2π(j + ½)/M (Im C₀ = 0)."""
-    m = p.size
-    phi = 2.0 * np.pi * (np.arange(m) + 0.5) / m
-    n = np.arange(terms)
-    f = np.exp(1j * np.multiply.outer(n, phi)) @ p / m  # (1/M) Σ P e^{inφ}
-    c = 2.0 * f
-    c[0] = f[0].real
-    return c
-
-
-def closure_residuals(c: np.ndarray, a: float) -> tuple[float, complex]:
-    """(Re C₀, C₁ − a): both zero for a unit free stream and a closed contour."""
-    return float(c[0].real), complex(c[1] - a)
-
-
 def _closed_series(phi, p, weight, a, terms, smoothing: float | None = None):
     """The coefficients C of a closed section (C₀ = 0, C₁ = a) whose P = Re Σ Cₙ e^{−inφ} is
     nearest to ``p`` in the least-squares sense with point weights ``weight``, with a penalty
@@ -258,8 +241,6 @@ class _Shape:
     """The contour of coefficients C on a fine grid, with x(φ) inverted on each surface."""
 
     def __init__(self, c: np.ndarray, a: float, intervals: int):
-        from scipy.interpolate import CubicSpline
-
         z = lighthill_contour(c, a, intervals)
         self.gap = abs(z[-1] - z[0])
         self.phi = 2.0 * np.pi * np.arange(intervals + 1) / intervals
@@ -269,21 +250,26 @@ class _Shape:
         te_minus_le = (z[1] - z[0]) / (zc[1] - zc[0])  # the frame's scale: dz = dzc (te − le)
         self.chord = abs(te_minus_le)
         self.gamma = float(np.angle(te_minus_le))
-        x = self.zc.real
-        self.monotone = bool(np.all(np.diff(x[: j + 1]) < 0) and np.all(np.diff(x[j:]) > 0))
-        # upper: φ from 0 to φ_LE, x from 1 down to 0; lower: φ_LE to 2π, x from 0 up to 1; a
-        # spline of φ in √x on each (x grows as the square of the distance from the nose).  A
-        # surface that turns back in x (a wavy trial shape) is read along its monotone envelope.
-        self._spl = {}
-        xu = np.minimum.accumulate(x[: j + 1])
-        xl = np.maximum.accumulate(x[j:])
-        for side, xs, ph in ((True, xu, self.phi[: j + 1]), (False, xl, self.phi[j:])):
-            order = np.argsort(xs, kind="stable")
-            u = np.sqrt(np.maximum(xs[order], 0.0))
-            keep = np.concatenate([[True], np.diff(u) > 1e-13])
-            self._spl[side] = CubicSpline(u[keep], ph[order][keep])
 
     def phi_at(self, x: np.ndarray, upper: np.ndarray) -> np.ndarray:
+        """Circle angles of chord stations ``x`` on the given surfaces.
+
+        Upper: φ from 0 to φ_LE, x from 1 down to 0; lower: φ_LE to 2π, x from 0 up to 1; a
+        spline of φ in √x on each (x grows as the square of the distance from the nose).  A
+        surface that turns back in x is read along its monotone envelope.
+        """
+        from scipy.interpolate import CubicSpline
+
+        if not hasattr(self, "_spl"):
+            j, x_all = self.j_le, self.zc.real
+            self._spl = {}
+            xu = np.minimum.accumulate(x_all[: j + 1])
+            xl = np.maximum.accumulate(x_all[j:])
+            for side, xs, ph in ((True, xu, self.phi[: j + 1]), (False, xl, self.phi[j:])):
+                order = np.argsort(xs, kind="stable")
+                u = np.sqrt(np.maximum(xs[order], 0.0))
+                keep = np.concatenate([[True], np.diff(u) > 1e-13])
+                self._spl[side] = CubicSpline(u[keep], ph[order][keep])
         out = np.empty_like(x)
         for side in (True, False):
             m = upper == side
@@ -402,7 +388,7 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms):
     """One step of Lighthill's inverse on the current shape: the target read at x(φ), ln q
     moved to it (at most ``STEP_LIMIT`` per point; points slower than ``QMIN`` in the target
     or the current flow, near the stagnation points, and points the target does not cover
-    keep the current speed), the closure met by the least change, one FFT."""
+    keep the current speed), then the closed series nearest to it (:func:`_closed_series`)."""
     m = phi.size
     shape = _Shape(c, a, 2 * m)
     if cl is not None:
