@@ -62,8 +62,8 @@ def inverse_figure(res, name: str):
         if not m.any():
             continue
         o = np.argsort(t.x[m])
-        ax_p.plot(t.x[m][o], t.cp[m][o], "o", ms=3.2, mfc="none", color=target_col,
-                  label=f"target, {label}")
+        ax_p.plot(t.x[m][o], t.cp[m][o], "o" if up else "s", ms=3.2, mfc="none",
+                  color=target_col, label=f"target, {label}")
         ax_p.plot(t.x[m][o], res.achieved_cp[m][o], "-", lw=1.4,
                   color=ink if up else "#5d6d7e", label=f"achieved, {label}")
     ax_p.invert_yaxis()

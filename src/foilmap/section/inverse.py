@@ -48,8 +48,13 @@ __all__ = ["Target", "InverseResult", "InverseSection", "inverse_design", "inver
 _GAUSS = np.polynomial.legendre.leggauss(6)
 #: grading exponent of the end intervals, where the integrand behaves as θ^a (θ = h s^p)
 _GRADE = 4
-#: weight of the trailing-edge zone's level continuation of P (see :func:`_lighthill_step`)
+#: weight of the trailing-edge zone's straight continuation of P (see :func:`_lighthill_step`)
 TE_WEIGHT = 1e-4
+#: the firm weight, and the departure from the continuation that calls for it
+TE_WEIGHT_FIRM = 0.1
+TE_DEPARTURE = 0.05
+#: read points whose line continues P into the trailing-edge zone
+TE_FIT_POINTS = 8
 #: weight of the points outside a partial target (they keep the current P, weakly)
 FREE_WEIGHT = 0.01
 #: chord station beyond which a target is not read (the trailing-edge stagnation zone)
@@ -308,27 +313,45 @@ def inverse_design(target: Target, *, cl: float | None = None, alpha: float | No
         c[2:] = v[: terms - 2] + 1j * v[terms - 2 :]
         return c
 
-    def step(v):
-        try:
-            c_new, _ = _lighthill_step(unpack(v), a, cl, alpha, phi, surfaces, terms)
-        except ValueError:  # a contour that has folded
-            return np.full(v.size, np.nan)
-        return pack(c_new)
+    def solve(te_weight):
+        def step(v):
+            try:
+                c_new, _ = _lighthill_step(unpack(v), a, cl, alpha, phi, surfaces, terms,
+                                           te_weight)
+            except ValueError:  # a contour that has folded
+                return np.full(v.size, np.nan)
+            return pack(c_new)
 
-    # Anderson mixing first; a run that does not settle is repeated with gentler mixing and
-    # then with plain half steps, and the run that came nearest to a fixed point is kept
-    best = None
-    for beta, depth in ((0.5, 8), (0.3, 3), (0.3, 0)):
-        x, change, it = _mix(step, pack(start), beta, depth, iterations, tol)
-        if best is None or change < best[1]:
-            best = (x, change, it)
-        if change < tol:
-            break
-    x, change, it = best
+        # Anderson mixing first; a run that does not settle is repeated with gentler mixing
+        # and then with plain half steps, and the run nearest to a fixed point is kept
+        best = None
+        for beta, depth in ((0.5, 8), (0.3, 3), (0.3, 0)):
+            got = _mix(step, pack(start), beta, depth, iterations, tol)
+            if best is None or got[1] < best[1]:
+                best = got
+            if got[1] < tol:
+                break
+        return best
+
+    # the trailing-edge zone is held lightly first (a consistent target is then met closely);
+    # when the result leaves that zone's straight continuation by more than TE_DEPARTURE in
+    # ln q — a target the closure cannot meet pushes its mismatch there, as a spike — it is
+    # solved again with the zone held firmly
+    x, change, it = solve(TE_WEIGHT)
+    with np.errstate(all="ignore"):
+        try:
+            dep = _lighthill_step(unpack(x), a, cl, alpha, phi, surfaces, terms)[1][
+                "te_departure"]
+        except ValueError:
+            dep = np.inf
+    te_weight = TE_WEIGHT
+    if not dep <= TE_DEPARTURE:
+        te_weight = TE_WEIGHT_FIRM
+        x, change, it = solve(te_weight)
     converged = change < tol
     c = unpack(x)
     with np.errstate(all="ignore"):
-        _, info = _lighthill_step(c, a, cl, alpha, phi, surfaces, terms)
+        _, info = _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight)
         shape = _Shape(c, a, 8 * grid)
         alpha_c = info["alpha_circle"]
         achieved = lighthill_speed(c, a, alpha_c, shape.phi_at(target.x, target.upper))
@@ -384,7 +407,7 @@ def _mix(step, x, beta: float, depth: int, iterations: int, tol: float):
     return x, change, it
 
 
-def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms):
+def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None):
     """One step of Lighthill's inverse on the current shape: the target read at x(φ), ln q
     moved to it (at most ``STEP_LIMIT`` per point; points slower than ``QMIN`` in the target
     or the current flow, near the stagnation points, and points the target does not cover
@@ -426,20 +449,24 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms):
     # outside it (a partial target: the rest of the contour keeps its current speed unless
     # the target and the closure ask otherwise)
     weight = np.where(rows, 1.0, np.where(spans, 0.0, FREE_WEIGHT))
-    # the trailing-edge zone of a target that runs into it: P held level with its value at the
-    # last point read on that surface (the speed then follows the exact edge factor), with a
-    # small weight, so that no mismatch elsewhere is pushed into the unread zone
+    te_weight = TE_WEIGHT if te_weight is None else te_weight
+    # the trailing-edge zone of a target that runs into it: P continued along the straight line
+    # through the last points read on that surface (by least squares in φ), with a small
+    # weight, so that no mismatch elsewhere is pushed into the unread zone
+    te_dev = 0.0
     for side in (True, False):
-        on_side = (upper == side) & covered
+        on_side = np.flatnonzero((upper == side) & rows & (x > 0.5))
         zone = (upper == side) & spans & ~covered & (x > 0.5)
-        if on_side.any() and zone.any():
-            j = np.flatnonzero(on_side)[np.argmax(x[on_side])]
-            p_t[zone] = p_t[j]
-            weight[zone] = TE_WEIGHT
+        if on_side.size >= 2 and zone.any():
+            last = on_side[np.argsort(x[on_side])[-TE_FIT_POINTS:]]
+            slope, icept = np.polyfit(phi[last], p_t[last], 1)
+            p_t[zone] = icept + slope * phi[zone]
+            weight[zone] = te_weight
+            te_dev = max(te_dev, float(np.max(np.abs(p_now[zone] - p_t[zone]))))
     c_new = _closed_series(phi, p_t, weight, a, terms)
     dp = np.where(rows, p_t - np.real(_series(c_new, phi)), 0.0)
     return c_new, {"alpha_circle": alpha_c, "given": covered, "x": x, "upper": upper,
-                   "closure_dlnq": dp}
+                   "closure_dlnq": dp, "te_departure": te_dev}
 
 
 def _interp_surface(xs: np.ndarray, qs: np.ndarray, x: np.ndarray) -> np.ndarray:
