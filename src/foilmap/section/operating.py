@@ -174,7 +174,8 @@ def cl_range_below(section, level: float, cl_limits=(-3.0, 3.0), step: float = 0
         cls = np.atleast_1d(np.asarray(cls, dtype=float))
         many = SectionSet(np.repeat(section.coefficients, cls.size, axis=0),
                           np.repeat(section.te_angle, cls.size))
-        ev = analyse(many, cl=cls, proxies=(), **analyse_kw).evaluation
+        with np.errstate(all="ignore"):  # Cl beyond the ideal limit is a status, not a warning
+            ev = analyse(many, cl=cls, proxies=(), **analyse_kw).evaluation
         return np.where(ev.status == 0, -ev.cp_min, np.nan)
 
     grid = np.arange(cl_limits[0], cl_limits[1] + 0.5 * step, step)
