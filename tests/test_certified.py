@@ -150,10 +150,13 @@ def test_compiled_kernel_matches_the_reference_pipeline():
     for i, name in enumerate(FIGURES):
         ref = np.asarray(getattr(ev, name), dtype=float)[ok]
         np.testing.assert_allclose(fig[ok, i], ref, rtol=0, atol=1e-9, err_msg=name)
-    np.testing.assert_allclose(peaks[ok, 0], -ev.cp_min[ok], rtol=1e-12)
-    for j, cl in enumerate((0.3, 0.7), start=1):
-        other, _ = an.peak_suction_at(cl)
-        np.testing.assert_allclose(peaks[ok, j], other[ok], rtol=1e-12)
+    # the largest peak suction over the three Cls: certified to the kernel's tolerance on q
+    # (the Cls after the design Cl are cleared against the largest speed found so far)
+    each = np.stack([-ev.cp_min, an.peak_suction_at(0.3)[0], an.peak_suction_at(0.7)[0]])
+    q2 = 1.0 + each.max(axis=0)
+    np.testing.assert_array_less(np.abs(peaks - each.max(axis=0))[ok], 2.1e-7 * q2[ok])
+    # mostly the refined maximum itself, to round-off
+    assert np.mean(np.abs(peaks - each.max(axis=0))[ok] <= 1e-12 * q2[ok]) > 0.9
     from foilmap.section.geometry import exact_points_at_x
 
     xs = np.array([0.3, 0.9])

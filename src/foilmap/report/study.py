@@ -46,7 +46,7 @@ LE_RADIUS_FLOOR = 0.002
 def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
     """One warning line per run whose best feasible design has a leading-edge radius below
     ``floor`` (chords), naming the study key that prevents it."""
-    from foilmap.section.evaluation import evaluate
+    from foilmap.section.geometry import leading_edge_radius
 
     folder = StudyFolder(out)
     lines = []
@@ -55,7 +55,7 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
         if b is None:
             continue
         d = folder.design(r.run_id, b["index"], log)
-        radius = float(evaluate(d.section, cl=r.point.cl, proxies=()).le_radius[0])
+        radius = float(leading_edge_radius(d.section)[0])  # a logged feasible design: valid
         if radius < floor:
             lines.append(f"warning: the best design of run {r.run_id} has a leading-edge radius "
                          f"of {radius:.2g} c, below the practical floor of about {floor:g} c; "

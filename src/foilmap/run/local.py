@@ -96,9 +96,13 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
         progress.done = len(runs) - len(todo)
     if not todo:
         return []
-    from foilmap.section import _compiled
+    if min(workers, len(todo)) > 1:
+        # several workers start at once: compile (or load) here first, so that they load the
+        # compiled kernel from the cache instead of each compiling it; a single worker loads
+        # it itself (loading it here too cost every study a second)
+        from foilmap.section import _compiled
 
-    _compiled.warm_up()  # workers then load the compiled kernel from the cache
+        _compiled.warm_up()
     args = (study,)
     if engine not in ("local", "dask"):
         raise InputError(f"engine {engine!r} is not one of: local, dask")

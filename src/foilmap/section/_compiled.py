@@ -344,12 +344,18 @@ def _arc_speed_bound(zmin, kz, q2, q, phi, delta, u, alpha_c):
 
 @njit(cache=True)
 def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c, tol,
-          sc, sd, ste):
+          sc, sd, ste, floor):
     """Certified global maximum of q(φ) = |w|/|z'|: returns (q_max, φ_max, certified).
 
     Every sampled local maximum within 10 % of the largest sample is refined to round-off; then
     every arc of the circle is shown by rigorous bounds to hold no speed above q_max (1 + tol),
     splitting arcs until it does.  ``certified`` is False only if the budget ran out.
+
+    ``floor`` > 0 asks only for the maximum over several flows: arcs are cleared against
+    max(q_max, floor) (1 + tol), so that q_max is this flow's maximum where it exceeds the floor
+    and a value below it otherwise (the largest speed seen); either way no point of this flow is
+    faster than max(q_max, floor) (1 + tol).  A flow whose speeds stay well below the floor is
+    cleared at the coarsest arcs.
     """
     l1, l2, l3, gdte, mm, omh1 = consts[0], consts[1], consts[2], consts[3], consts[4], consts[5]
     p = phis.shape[0]
@@ -366,9 +372,10 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
         if q > best:
             best = q
             best_phi = phis[j]
+    ref = max(best, floor)
     for j in range(p):
         qj = qs[j]
-        if qj >= 0.9 * best and qj >= qs[(j - 1) % p] and qj >= qs[(j + 1) % p]:
+        if qj >= 0.9 * ref and qj >= qs[(j - 1) % p] and qj >= qs[(j + 1) % p]:
             lo = max(phis[j] - step, 1e-12)
             hi = min(phis[j] + step, _TWO_PI - 1e-12)
             qr, pr = _refine_max(a, a0, k, u, alpha_c, lo, hi)
@@ -376,7 +383,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
                 best = qr
                 best_phi = pr
     top = 0
-    limit = best * (1.0 + tol)
+    limit = max(best, floor) * (1.0 + tol)
     for j in range(p):
         te = j == 0 or j == p - 1
         if not te and oks[j] and _arc_speed_bound(zmins[j], kzs[j], q2s[j], qs[j], phis[j],
@@ -407,7 +414,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
             if q > best:
                 best = q
                 best_phi = cc
-                limit = best * (1.0 + tol)
+                limit = max(best, floor) * (1.0 + tol)
             if te and ((i == 0 and c < math.pi) or (i == 1 and c > math.pi)):
                 sc[top] = cc
                 sd[top] = hd
@@ -1201,7 +1208,7 @@ def peak_batch(coeffs, tau, alpha_c, points, tol):
         a0, k, consts, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds = _prepare(
             a, tau[i], zeta)
         q[i], phi[i], cert[i] = _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins,
-                                      kzs, alpha_c[i], tol, sc, sd, ste)
+                                      kzs, alpha_c[i], tol, sc, sd, ste, 0.0)
     return q, phi, cert
 
 
@@ -1220,8 +1227,8 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
 
     Returns
     -------
-    status (B,) int8, figures (B, len(FIGURES)) at the design Cl (radians), peak suction (B, K)
-    at every Cl, thickness at the stations (B, M).
+    status (B,) int8, figures (B, len(FIGURES)) at the design Cl (radians), the largest peak
+    suction over the Cls (B,), thickness at the stations (B, M).
     """
     nb = coeffs.shape[0]
     ncl = cls.shape[0]
@@ -1231,7 +1238,7 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
     step = _TWO_PI / p
     status = np.zeros(nb, dtype=np.int8)
     fig = np.full((nb, _NF), np.nan)
-    peaks = np.full((nb, ncl), np.nan)
+    peaks = np.full(nb, np.nan)
     thick = np.full((nb, stations.shape[0]), np.nan)
     sc, sd, ste, ws, wb, wi = _workspace(points)
     m_st = 65
@@ -1281,17 +1288,20 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         alpha_c = math.asin(cls[0] / clmax)
         alpha = alpha_c - gamma + a0.imag
         circ = 4.0 * math.pi * u * math.sin(alpha_c)
-        # peak suction at every Cl (certified)
+        # the peak suction at the design Cl, then the largest over every Cl (certified): the
+        # other Cls are cleared against the largest speed found so far
         phi_pk = 0.0
         q_pk = 0.0
+        q_all = 0.0
         for c in range(ncl):
             ac = math.asin(cls[c] / clmax)
             qm, pm, _ = _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs,
-                              ac, tol, sc, sd, ste)
-            peaks[b, c] = qm * qm - 1.0
+                              ac, tol, sc, sd, ste, q_all)
+            q_all = max(q_all, qm)
             if c == 0:
                 q_pk = qm
                 phi_pk = pm
+        peaks[b] = q_all * q_all - 1.0
         z_pk = (map_point(a, a0, k, phi_pk)[3] - z_le) * scale
         # Cm c/4 from three Laurent coefficients (Blasius; see foilmap.section.flow)
         a1 = a[0]
@@ -1430,7 +1440,7 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
     for b in range(nb):
         if status[b] != V_OK:
             fig[b, :] = np.nan
-            peaks[b, :] = np.nan
+            peaks[b] = np.nan
             thick[b, :] = np.nan
     return status, fig, peaks, thick
 

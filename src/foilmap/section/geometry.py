@@ -13,11 +13,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from foilmap.section._numerics import interp_rows, refine_extremum
-from foilmap.section.conformal import CircleGrid, MapValues, SectionSet, map_at
+from foilmap.section.conformal import CircleGrid, MapValues, SectionSet, map_at, map_on_grid
 
 __all__ = [
     "ChordFrame",
     "chord_frame",
+    "leading_edge_radius",
     "SurfaceSplit",
     "split_surfaces",
     "Geometry",
@@ -75,6 +76,16 @@ def chord_frame(sections: SectionSet, mv: MapValues, grid: CircleGrid) -> ChordF
     te_minus_le = k - z_le
     return ChordFrame(phi_le, z_le, np.abs(te_minus_le), np.angle(te_minus_le), 1.0 / te_minus_le)
 
+
+
+def leading_edge_radius(sections: SectionSet, points: int = 256) -> np.ndarray:
+    """Exact leading-edge radius of valid sections, in chords, (B,): 1/κ at φ_LE with
+    κ = Re(1 + ζz''/z') / |z'| (what :func:`section_geometry` reports, without the rest)."""
+    grid = CircleGrid.get(points, sections.n_coefficients)
+    frame = chord_frame(sections, map_on_grid(sections, grid), grid)
+    m = map_at(sections, np.exp(1j * frame.phi_le)[:, None])
+    with np.errstate(all="ignore"):
+        return np.abs(m.dz[:, 0]) / np.real(1.0 + m.q2[:, 0]) / frame.chord
 
 @dataclass(frozen=True)
 class SurfaceSplit:
