@@ -128,8 +128,9 @@ def _constants(a):
 
 
 @njit(cache=True)
-def _arc_bounds(g, e, h, delta, k, l1, l2, l3):
-    """Rigorous bounds of the map over the arc |φ − φ_m| ≤ δ from its values at φ_m.
+def _arc_bounds(g, e, h, delta, k, l1, l2, l3, x):
+    """Rigorous bounds of the map over the arc |φ − φ_m| ≤ δ from its values at φ_m; ``x`` is
+    exp(L1 δ) (the same for every arc of a grid, so computed once by the caller).
 
     Returns (ok, zmin, kz, dlog, gd): a lower bound of |z'|, bounds of |D² ln z'| and
     |D ln z'|, and a bound of |D g| (the near-circle stays in the disc of radius gd·δ about
@@ -140,7 +141,6 @@ def _arc_bounds(g, e, h, delta, k, l1, l2, l3):
     m1 = omh - l2 * delta
     if m1 <= 0.0:
         return False, 0.0, _INF, _INF, _INF
-    x = math.exp(l1 * delta)
     emax = ae * x
     emin = ae / x
     omh_max = omh + l2 * delta
@@ -166,11 +166,24 @@ def _arc_bounds(g, e, h, delta, k, l1, l2, l3):
     auc = abs(uc)
     omt_min = 2.0 * (auc - ru)
     omt_max = 2.0 * (auc + ru)
-    # powers of |t| from two exponentials: tmin^{k−1}, tmax^{k−1}
-    amin = math.exp((k - 1.0) * math.log(tmin))
-    amax = math.exp((k - 1.0) * math.log(tmax))
-    tmax_k = amax * tmax
+    # bounds of tmin^{k−1} (amin below it, amin_hi above) and of tmax^{k−1} (amax above it).
+    # For 0 ≤ ε = k − 1 ≤ 1 and y = ρ/|t_c| < 1, from |t_c|^ε = |t_c^k|/|t_c| and the
+    # concavity of y ↦ (1 ± y)^ε: 1 − y ≤ (1 − y)^ε ≤ 1 − εy and (1 + y)^ε ≤ 1 + εy
+    # (no further exponentials; used on short arcs, y ≤ 1e-3, where they are tight to
+    # y² and the arcs of a grid and of every split are); otherwise the powers themselves
     tck = _powk(tc, k)
+    eps = k - 1.0
+    if 0.0 <= eps <= 1.0 and rt <= 1e-3 * atc:
+        ace = abs(tck) / atc
+        y = rt / atc
+        amin = ace * (1.0 - y)
+        amin_hi = ace * (1.0 - eps * y)
+        amax = ace * (1.0 + eps * y)
+    else:
+        amin = math.exp(eps * math.log(tmin))
+        amin_hi = amin
+        amax = math.exp(eps * math.log(tmax))
+    tmax_k = amax * tmax
     dist_cut = abs(tc.imag) if tc.real <= 0.0 else atc
     if dist_cut > rt:  # the disc avoids the cut t ≤ 0: t^k is k max|t|^{k−1}-Lipschitz there
         lip = k * amax * rt
@@ -194,10 +207,10 @@ def _arc_bounds(g, e, h, delta, k, l1, l2, l3):
     p_c = (k - 1.0) / tc - 2.0 / omtc + 2.0 * k * tck1 / omtck
     p1_c = (-(k - 1.0) / (tc * tc) - 2.0 / (omtc * omtc) + 2.0 * k * (k - 1.0) * tck1 / tc / omtck
             + 2.0 * k * k * tck1 * tck1 / (omtck * omtck))
-    t23 = max(amin * amin / tmin, amax * amax / tmax)  # max |t|^{2k−3} on the disc
+    t23 = max(amin_hi * amin_hi / tmin, amax * amax / tmax)  # max |t|^{2k−3} on the disc
     omk3 = omtk_min * omtk_min * omtk_min
     p2max = (2.0 * (k - 1.0) / (tmin * tmin * tmin) + 4.0 / (omt_min * omt_min * omt_min)
-             + 2.0 * k * (k - 1.0) * (2.0 - k) * amin / (tmin * tmin) / omtk_min
+             + 2.0 * k * (k - 1.0) * (2.0 - k) * amin_hi / (tmin * tmin) / omtk_min
              + 6.0 * k * k * (k - 1.0) * t23 / (omtk_min * omtk_min)
              + 4.0 * k * k * k * amax * amax * amax / omk3)
     p1max = abs(p1_c) + rt * p2max
@@ -229,8 +242,9 @@ def _sample(a, a0, k, zeta, gs, es, hs, zs, dzs, q2s):
 
 @njit(cache=True)
 def _grid_bounds(gs, es, hs, delta, k, l1, l2, l3, oks, zmins, kzs, dlogs, gds):
+    x = math.exp(l1 * delta)
     for j in range(gs.shape[0]):
-        ok, zmin, kz, dlog, gd = _arc_bounds(gs[j], es[j], hs[j], delta, k, l1, l2, l3)
+        ok, zmin, kz, dlog, gd = _arc_bounds(gs[j], es[j], hs[j], delta, k, l1, l2, l3, x)
         oks[j] = ok
         zmins[j] = zmin
         kzs[j] = kz
@@ -421,7 +435,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
                 ste[top] = True
                 top += 1
                 continue
-            ok, zmin, kz, _, _ = _arc_bounds(g, e, h, hd, k, l1, l2, l3)
+            ok, zmin, kz, _, _ = _arc_bounds(g, e, h, hd, k, l1, l2, l3, math.exp(l1 * hd))
             if ok and _arc_speed_bound(zmin, kz, q2, q, cc, hd, u, alpha_c) <= limit:
                 continue
             sc[top] = cc
@@ -590,30 +604,31 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
 def _t_box(a, a0, k, l1, l2, c, d):
     """:func:`_t_box_at` for the arc |φ − c| ≤ d."""
     g, e, h, _, _, _ = map_point(a, a0, k, c)
-    return _t_box_at(g, e, h, l1, l2, d)
+    return _t_box_at(g, e, h, l1, l2, d, math.exp(l1 * d))
 
 
 @njit(cache=True)
-def _t_box_at(g, e, h, l1, l2, d):
-    """Box (ln|t| low, high, arg t low, high) holding t = (z₁ − 1)/(z₁ + 1) over an arc of
-    half-width d whose centre maps to (g, e, h): the near-circle stays in D(g_m, R), R = |e| e^{L1 d}(|1 − h| + L2 d) d, whose
-    Möbius image is a disc (centre t_c, radius ρ).  An unbounded box asks for a split."""
-    rad = abs(e) * math.exp(l1 * d) * (abs(1.0 - h) + l2 * d) * d
+def _t_box_at(g, e, h, l1, l2, d, x):
+    """Box (|t| low, high, arg t low, high) holding t = (z₁ − 1)/(z₁ + 1) over an arc of
+    half-width d whose centre maps to (g, e, h), with x = e^{L1 d}: the near-circle stays in
+    D(g_m, R), R = |e| x (|1 − h| + L2 d) d, whose Möbius image is a disc (centre t_c,
+    radius ρ).  An unbounded box asks for a split."""
+    rad = abs(e) * x * (abs(1.0 - h) + l2 * d) * d
     c1 = g + 1.0
     cc = abs(c1)
     if cc <= rad * 1.000001:
-        return -_INF, _INF, -math.pi, math.pi
+        return 0.0, _INF, -math.pi, math.pi
     den = cc * cc - rad * rad
     tc = 1.0 - 2.0 * c1.conjugate() / den
     rt = 2.0 * rad / den
     atc = abs(tc)
     if rt >= atc * 0.999999:
-        return -_INF, _INF, -math.pi, math.pi
+        return 0.0, _INF, -math.pi, math.pi
     at = math.atan2(tc.imag, tc.real)
     var = math.asin(rt / atc)
     if abs(at) + var >= math.pi:
-        return -_INF, _INF, -math.pi, math.pi
-    return math.log(atc - rt), math.log(atc + rt), at - var, at + var
+        return 0.0, _INF, -math.pi, math.pi
+    return atc - rt, atc + rt, at - var, at + var
 
 
 @njit(cache=True)
@@ -634,7 +649,7 @@ def _te_excess(psi, consts):
 
 @njit(cache=True)
 def _te_box(sigma, psa, psb, consts):
-    """Box (ln|t| low, high, arg t low, high) over the distances [ψa, ψb] from the trailing edge
+    """Box (|t| low, high, arg t low, high) over the distances [ψa, ψb] from the trailing edge
     on the side σ (+1 upper, −1 lower), from the expansion arg t = β_σ + κφ ± E(ψ) and
     |t| ∈ [ψ(|1 − h(1)| − Mψb/2)/(2 + Gψb), Gψb/(2 − Gψb)]."""
     gdte, mm, omh1, arg1h, kappa = consts[3], consts[4], consts[5], consts[6], consts[8]
@@ -642,12 +657,12 @@ def _te_box(sigma, psa, psb, consts):
     x = gdte * psb
     lo = omh1 - 0.5 * mm * psb
     if e == _INF or x >= 2.0 or lo <= 0.0:
-        return -_INF, _INF, -math.pi, math.pi
+        return 0.0, _INF, -math.pi, math.pi
     beta = sigma * _HALF_PI + arg1h
     s1 = sigma * kappa * psa
     s2 = sigma * kappa * psb
-    rlo = math.log(psa * lo / (2.0 + x)) if psa > 0.0 else -_INF
-    return rlo, math.log(x / (2.0 - x)), beta + min(s1, s2) - e, beta + max(s1, s2) + e
+    rlo = psa * lo / (2.0 + x) if psa > 0.0 else 0.0
+    return rlo, x / (2.0 - x), beta + min(s1, s2) - e, beta + max(s1, s2) + e
 
 
 @njit(cache=True)
@@ -657,9 +672,9 @@ def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
 
     t^k (principal) takes the same value at two points t₁ ≠ t₂ of the slit plane only where
     |t₁| = |t₂| and arg t₁ − arg t₂ = ±2π/k.  The arcs of the circle are boxed in
-    (ln|t|, arg t): by the Möbius image of the disc that holds the near-circle over the arc
+    (|t|, arg t): by the Möbius image of the disc that holds the near-circle over the arc
     (:func:`_t_box`), intersected near the trailing edge with the box of the edge expansion
-    (:func:`_te_box`).  A crossing needs two boxes that overlap in ln|t| and whose args can
+    (:func:`_te_box`).  A crossing needs two boxes that overlap in |t| and whose args can
     differ by 2π/k; such boxes are split until none remain (certified) or the budget runs out
     (the section is rejected).  The two arcs that end at the edge, where t → 0 and the args
     tend to β± (exactly π apart), are cleared against each other when f(ψ) = κψ + E(ψ), which
@@ -684,6 +699,7 @@ def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
         te[n] = j == 0 or j == p - 1
         n += 1
     near = 0.25  # arcs within this angle of the edge also get the expansion box
+    x_grid = math.exp(l1 * 0.5 * step)  # e^{L1 d} of the grid's arcs
     for rnd in range(80):
         te_pair_ok = True
         for i in range(n):
@@ -701,7 +717,7 @@ def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
             if te[i]:
                 r0, r1, a0_, a1_ = _te_box(sigma, 0.0, 2.0 * d, consts)
             elif rnd == 0:
-                r0, r1, a0_, a1_ = _t_box_at(gs[i], es[i], hs[i], l1, l2, d)
+                r0, r1, a0_, a1_ = _t_box_at(gs[i], es[i], hs[i], l1, l2, d, x_grid)
             else:
                 r0, r1, a0_, a1_ = _t_box(a, a0, k, l1, l2, c, d)
                 if psi_c + d < near:
@@ -824,7 +840,7 @@ def _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le, sc
                     continue
         else:
             g, e, h, z, dz, q2 = map_point(a, a0, k, c)
-            ok, zmin, kz, dlog, gd = _arc_bounds(g, e, h, d, k, l1, l2, l3)
+            ok, zmin, kz, dlog, gd = _arc_bounds(g, e, h, d, k, l1, l2, l3, math.exp(l1 * d))
             if ok:
                 tang = 1j * complex(math.cos(c), math.sin(c)) * dz
                 theta = math.atan2(tang.imag, tang.real) + scale_arg
