@@ -108,12 +108,13 @@ def map_point(a, a0, k, phi):
 
 @njit(cache=True)
 def _constants(a):
-    """(A₀, L1, L2, L3, Σ|Aₙ|, h(1)) of a coefficient vector."""
+    """(A₀, L1, L2, L3, Σ|Aₙ|, h(1), L4) of a coefficient vector, L4 = Σ n⁴|Aₙ|."""
     a0 = 0j
     l0 = 0.0
     l1 = 0.0
     l2 = 0.0
     l3 = 0.0
+    l4 = 0.0
     h1 = 0j
     for n in range(a.shape[0]):
         m = abs(a[n])
@@ -123,14 +124,17 @@ def _constants(a):
         l1 += w * m
         l2 += w * w * m
         l3 += w * w * w * m
+        l4 += w * w * w * w * m
         h1 += w * a[n]
-    return a0, l1, l2, l3, l0, h1
+    return a0, l1, l2, l3, l0, h1, l4
 
 
 @njit(cache=True)
 def _arc_bounds(g, e, h, delta, k, l1, l2, l3, x):
     """Rigorous bounds of the map over the arc |φ − φ_m| ≤ δ from its values at φ_m; ``x`` is
-    exp(L1 δ) (the same for every arc of a grid, so computed once by the caller).
+    exp(L1 δ) (the same for every arc of a grid, so computed once by the caller), and l1, l2,
+    l3 bound |D S| = |h|, |D h| = |Σ n² Aₙ ζ⁻ⁿ| and |D² h| = |Σ n³ Aₙ ζ⁻ⁿ| on the arc (the
+    global L1, L2, L3, or the tighter :func:`_local_bounds`).
 
     Returns (ok, zmin, kz, dlog, gd): a lower bound of |z'|, bounds of |D² ln z'| and
     |D ln z'|, and a bound of |D g| (the near-circle stays in the disc of radius gd·δ about
@@ -241,10 +245,31 @@ def _sample(a, a0, k, zeta, gs, es, hs, zs, dzs, q2s):
 
 
 @njit(cache=True)
-def _grid_bounds(gs, es, hs, delta, k, l1, l2, l3, oks, zmins, kzs, dlogs, gds):
+def _local_bounds(a, zeta, h, delta, l1, l2, l3, l4):
+    """Bounds of |h|, |Σ n² Aₙ ζ⁻ⁿ| and |Σ n³ Aₙ ζ⁻ⁿ| over the arc |φ − φ_m| ≤ δ: each by its
+    value at the centre ζ plus δ times the bound of its derivative (the next of L2, L3, L4),
+    and never above the global L1, L2, L3.  Mid-chord, where the series' terms cancel, these
+    are several times smaller than the global ones."""
+    inv = zeta.conjugate()
+    pw = inv
+    h2 = 0j
+    h3 = 0j
+    for n in range(a.shape[0]):
+        w = n + 1.0
+        term = w * w * a[n] * pw
+        h2 += term
+        h3 += w * term
+        pw *= inv
+    return (min(l1, abs(h) + delta * l2), min(l2, abs(h2) + delta * l3),
+            min(l3, abs(h3) + delta * l4))
+
+
+@njit(cache=True)
+def _grid_bounds(a, zeta, gs, es, hs, delta, k, l1, l2, l3, l4, oks, zmins, kzs, dlogs, gds):
     x = math.exp(l1 * delta)
     for j in range(gs.shape[0]):
-        ok, zmin, kz, dlog, gd = _arc_bounds(gs[j], es[j], hs[j], delta, k, l1, l2, l3, x)
+        b1, b2, b3 = _local_bounds(a, zeta[j], hs[j], delta, l1, l2, l3, l4)
+        ok, zmin, kz, dlog, gd = _arc_bounds(gs[j], es[j], hs[j], delta, k, b1, b2, b3, x)
         oks[j] = ok
         zmins[j] = zmin
         kzs[j] = kz
@@ -372,6 +397,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
     cleared at the coarsest arcs.
     """
     l1, l2, l3, gdte, mm, omh1 = consts[0], consts[1], consts[2], consts[3], consts[4], consts[5]
+    l4 = consts[10]
     p = phis.shape[0]
     step = _TWO_PI / p
     u = math.exp(a0.real)
@@ -435,7 +461,9 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
                 ste[top] = True
                 top += 1
                 continue
-            ok, zmin, kz, _, _ = _arc_bounds(g, e, h, hd, k, l1, l2, l3, math.exp(l1 * hd))
+            b1, b2, b3 = _local_bounds(a, complex(math.cos(cc), math.sin(cc)), h, hd, l1, l2,
+                                       l3, l4)
+            ok, zmin, kz, _, _ = _arc_bounds(g, e, h, hd, k, b1, b2, b3, math.exp(l1 * hd))
             if ok and _arc_speed_bound(zmin, kz, q2, q, cc, hd, u, alpha_c) <= limit:
                 continue
             sc[top] = cc
@@ -840,7 +868,9 @@ def _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le, sc
                     continue
         else:
             g, e, h, z, dz, q2 = map_point(a, a0, k, c)
-            ok, zmin, kz, dlog, gd = _arc_bounds(g, e, h, d, k, l1, l2, l3, math.exp(l1 * d))
+            b1, b2, b3 = _local_bounds(a, complex(math.cos(c), math.sin(c)), h, d, l1, l2, l3,
+                                       consts[10])
+            ok, zmin, kz, dlog, gd = _arc_bounds(g, e, h, d, k, b1, b2, b3, math.exp(l1 * d))
             if ok:
                 tang = 1j * complex(math.cos(c), math.sin(c)) * dz
                 theta = math.atan2(tang.imag, tang.real) + scale_arg
@@ -1110,7 +1140,7 @@ def _stratford(s, u, du, x, n, n_in, jp, reynolds, s_te, closing_u, do_close):
 def _prepare(a, tau, zeta):
     """Grid samples, constants and arc bounds of one section (the shared workspace)."""
     p = zeta.shape[0]
-    a0, l1, l2, l3, l0, h1 = _constants(a)
+    a0, l1, l2, l3, l0, h1, l4 = _constants(a)
     k = 2.0 - tau / math.pi
     gs = np.empty(p, dtype=np.complex128)
     es = np.empty(p, dtype=np.complex128)
@@ -1124,7 +1154,8 @@ def _prepare(a, tau, zeta):
     kzs = np.empty(p)
     dlogs = np.empty(p)
     gds = np.empty(p)
-    _grid_bounds(gs, es, hs, math.pi / p, k, l1, l2, l3, oks, zmins, kzs, dlogs, gds)
+    _grid_bounds(a, zeta, gs, es, hs, math.pi / p, k, l1, l2, l3, l4, oks, zmins, kzs, dlogs,
+                 gds)
     # global bounds next to the trailing edge: |e| ≤ E = exp(Re A₀ + Σ|Aₙ|), |D g| ≤ E(1 + L1),
     # |D² g| ≤ E((1 + L1)² + L2); e(1) = 1 and h(1) = Σ n Aₙ there
     emax = math.exp(a0.real + l0)
@@ -1140,7 +1171,7 @@ def _prepare(a, tau, zeta):
         h21 += (n + 1.0) * (n + 1.0) * a[n]
     c2 = -(omh * omh + h21) / (2j * omh)
     consts = (l1, l2, l3, gdte, mm, abs(omh), math.atan2(omh.imag, omh.real), m3,
-              c2.imag - 0.5 * omh.real, abs(c2))
+              c2.imag - 0.5 * omh.real, abs(c2), l4)
     return a0, k, consts, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds
 
 
