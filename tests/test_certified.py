@@ -157,6 +157,17 @@ def test_compiled_kernel_matches_the_reference_pipeline():
     np.testing.assert_array_less(np.abs(peaks - each.max(axis=0))[ok], 2.1e-7 * q2[ok])
     # mostly the refined maximum itself, to round-off
     assert np.mean(np.abs(peaks - each.max(axis=0))[ok] <= 1e-12 * q2[ok]) > 0.9
+    # a search asks only for the largest peak: the ends first, the design Cl cleared against
+    # them; the same status, peak (to the certificate) and figures, less the design Cl's peak
+    st2, fig2, peaks2, _ = search_batch(
+        sec.coefficients, sec.te_angle, np.array([0.5, 0.3, 0.7]), 256, 0.95, 0.02, 0.9,
+        np.array([0.3, 0.9]), 7, 1e6, 1e-7, False)
+    np.testing.assert_array_equal(st2, status)
+    np.testing.assert_array_less(np.abs(peaks2 - each.max(axis=0))[ok], 2.1e-7 * q2[ok])
+    design_only = [FIGURES.index(n) for n in ("cp_min", "cp_min_x", "cp_min_upper")]
+    assert np.isnan(fig2[ok][:, design_only]).all()
+    np.testing.assert_array_equal(np.delete(fig2[ok], design_only, axis=1),
+                                  np.delete(fig[ok], design_only, axis=1))
     from foilmap.section.geometry import exact_points_at_x
 
     xs = np.array([0.3, 0.9])

@@ -203,15 +203,17 @@ class Problem:
         return Outcome(f, obj, g, status, feasible)
 
     def _evaluate_compiled(self, sec):
-        """The compiled kernel: every figure, the peak suction at every Cl of the point
-        (certified) and the exact station thickness in one pass per section."""
+        """The compiled kernel: every figure, the largest peak suction over the Cls of the
+        point (certified; not the design Cl's own, which the search does not use) and the exact
+        station thickness in one pass per section."""
         want = sum(bit for name, bit in (("severity", 1), ("thwaites", 2), ("stratford", 4))
                    if name in self._proxies())
         status, fig, peaks, st = _compiled.search_batch(
             np.ascontiguousarray(sec.coefficients), np.ascontiguousarray(sec.te_angle),
             np.array(self.point.cls, dtype=float), int(self.points),
             1.0 - DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN, float(self.proxy_end),
-            self.stations, want, float(self.point.reynolds or 0.0), _compiled.PEAK_TOLERANCE)
+            self.stations, want, float(self.point.reynolds or 0.0), _compiled.PEAK_TOLERANCE,
+            False)  # the largest peak over the Cls is all a search uses
         ev = Evaluation.from_figures(status, fig)
         return ev, peaks, st
 

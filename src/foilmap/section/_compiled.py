@@ -1261,7 +1261,7 @@ def peak_batch(coeffs, tau, alpha_c, points, tol):
 
 @njit(cache=True)
 def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stations, want,
-                 reynolds, tol):
+                 reynolds, tol, design_peak=True):
     """Everything a search needs of a batch, one section at a time.
 
     Parameters
@@ -1270,7 +1270,11 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
     first; points : circle samples; crit_radius, margin : 1 − δ₁ and δ₂; proxy_end : chord
     station where the proxies stop; stations : (M,) chord stations of exact thickness; want :
     bit flags of the proxies (1 severity, 2 Thwaites, 4 Stratford); reynolds : for Stratford;
-    tol : relative tolerance of the certified peak.
+    tol : relative tolerance of the certified peak; design_peak : whether the figures give the
+    peak suction at the design Cl itself (``cp_min``, ``cp_min_x``, ``cp_min_upper``).  A
+    search needs only the largest peak over its Cls: without ``design_peak`` the ends of the
+    range are certified first and the design Cl, inside it, is only cleared against them (those
+    three figures are then NaN).
 
     Returns
     -------
@@ -1336,20 +1340,26 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         alpha = alpha_c - gamma + a0.imag
         circ = 4.0 * math.pi * u * math.sin(alpha_c)
         # the peak suction at the design Cl, then the largest over every Cl (certified): the
-        # other Cls are cleared against the largest speed found so far
+        # other Cls are cleared against the largest speed found so far (without design_peak
+        # the design Cl comes last, cleared against the ends of the range)
         phi_pk = 0.0
-        q_pk = 0.0
+        q_pk = math.nan
         q_all = 0.0
-        for c in range(ncl):
+        for i in range(ncl):
+            c = i if (design_peak or ncl == 1) else (i + 1) % ncl
             ac = math.asin(cls[c] / clmax)
             qm, pm, _ = _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs,
                               ac, tol, sc, sd, ste, q_all)
-            q_all = max(q_all, qm)
-            if c == 0:
+            if c == 0 and i == 0:
                 q_pk = qm
                 phi_pk = pm
+            if not math.isfinite(qm):
+                q_all = math.nan
+                break
+            q_all = max(q_all, qm)
         peaks[b] = q_all * q_all - 1.0
-        z_pk = (map_point(a, a0, k, phi_pk)[3] - z_le) * scale
+        z_pk = (map_point(a, a0, k, phi_pk)[3] - z_le) * scale if q_pk == q_pk else complex(
+            math.nan, 0.0)
         # Cm c/4 from three Laurent coefficients (Blasius; see foilmap.section.flow)
         a1 = a[0]
         a2 = a[1] if a.shape[0] > 1 else 0j
@@ -1480,9 +1490,9 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         f[19] = st_m
         f[20] = st_up
         f[21] = st_lo
-        f[22] = 1.0 if phi_pk < phi_le else 0.0
+        f[22] = (1.0 if phi_pk < phi_le else 0.0) if q_pk == q_pk else math.nan
         if not (math.isfinite(f[0]) and math.isfinite(f[1]) and math.isfinite(f[5])
-                and math.isfinite(f[6]) and math.isfinite(f[8]) and math.isfinite(f[12])):
+                and math.isfinite(peaks[b]) and math.isfinite(f[8]) and math.isfinite(f[12])):
             status[b] = V_NON_FINITE
     for b in range(nb):
         if status[b] != V_OK:
