@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -60,6 +61,10 @@ class Problem:
     @property
     def objective_names(self) -> list[str]:
         return [n for n, _ in self.objectives]
+
+    @cached_property
+    def _spec_list(self) -> list[tuple[str, float, object]]:
+        return self._specs()
 
     def _specs(self) -> list[tuple[str, float, object]]:
         """The study's constraints as (name, typical size, g(ev, st, peak) ≤ 0), in log order
@@ -129,7 +134,7 @@ class Problem:
 
     @property
     def constraint_names(self) -> list[str]:
-        names = [n for n, _, _ in self._specs()]
+        names = [n for n, _, _ in self._spec_list]
         if self.epsilon is not None:
             names.append(f"epsilon_{self.objective_names[1]}")
         return names
@@ -137,7 +142,7 @@ class Problem:
     @property
     def constraint_scales(self) -> np.ndarray:
         """Typical size of each constraint (see :meth:`_specs`), in log order."""
-        out = [sc for _, sc, _ in self._specs()]
+        out = [sc for _, sc, _ in self._spec_list]
         if self.epsilon is not None:
             out.append(max(0.05 * abs(self.epsilon), 1e-3))
         return np.array(out)
@@ -168,19 +173,8 @@ class Problem:
             ev, peak, st = self._evaluate_compiled(sec)
             extra = {}
         status = ev.status.copy()
-        values = {
-            "peak_suction": self.corrected_peak(peak),
-            "severity": ev.severity,
-            "stratford_margin": ev.stratford_margin,
-            "laminar_deficit": 1.0 - np.where(np.isnan(ev.thwaites_sep_x_upper),
-                                              self.proxy_end, ev.thwaites_sep_x_upper),
-            "cm_magnitude": np.abs(ev.cm_quarter_chord),
-            "area": ev.area,
-            **extra,
-        }
-        if "critical_mach_deficit" in self.objective_names:  # a root per candidate: on demand
-            values["critical_mach_deficit"] = 1.0 - self.critical_mach(peak)
-        obj = np.stack([values[n] for n, _ in self.objectives], axis=1)
+        obj = np.stack([extra[n] if n in extra else self._objective(n, ev, peak)
+                        for n, _ in self.objectives], axis=1)
         weights = np.array([w for _, w in self.objectives])
         g = self._constraints(ev, st, peak)
         if self.point.mach:  # the peak-suction bound holds at the point's Mach number
@@ -201,6 +195,19 @@ class Problem:
         f, g = self.penalise(f, g, ok)
         feasible = ok & (np.all(g <= 0.0, axis=1) if g.shape[1] else True)
         return Outcome(f, obj, g, status, feasible)
+
+    def _objective(self, name: str, ev: Evaluation, peak: np.ndarray) -> np.ndarray:
+        """One objective's raw values (B,), computed only when the study asks for it."""
+        if name == "peak_suction":
+            return self.corrected_peak(peak)
+        if name == "laminar_deficit":
+            return 1.0 - np.where(np.isnan(ev.thwaites_sep_x_upper), self.proxy_end,
+                                  ev.thwaites_sep_x_upper)
+        if name == "cm_magnitude":
+            return np.abs(ev.cm_quarter_chord)
+        if name == "critical_mach_deficit":  # a root per candidate
+            return 1.0 - self.critical_mach(peak)
+        return getattr(ev, name)  # severity, stratford_margin, area
 
     def _evaluate_compiled(self, sec):
         """The compiled kernel: every figure, the largest peak suction over the Cls of the
@@ -269,7 +276,7 @@ class Problem:
         return np.sqrt(np.mean(d * d, axis=1))
 
     def _constraints(self, ev, st, peak) -> np.ndarray:
-        cols = [fn(ev, st, peak) for _, _, fn in self._specs()]
+        cols = [fn(ev, st, peak) for _, _, fn in self._spec_list]
         nb = ev.status.shape[0]
         return np.stack(cols, axis=1) if cols else np.zeros((nb, 0))
 
