@@ -216,3 +216,25 @@ def test_batch_equals_one_by_one(shaped, cambered):
         one = evaluate(s, cl=0.5)
         for name in ("alpha", "cp_min", "cm_quarter_chord", "thickness", "severity"):
             assert getattr(ev, name)[i] == pytest.approx(getattr(one, name)[0], rel=1e-12, abs=1e-14)
+
+
+def test_speed_at_the_trailing_edge_station_is_its_limit():
+    # x = 1 is the trailing edge itself: the stagnation point at a finite edge angle (q = 0),
+    # the limit along the surface at a cusp; no numpy warning reaches the caller
+    import warnings
+
+    from foilmap.section.conformal import SectionSet, offset_circle_coefficients
+    from foilmap.section.evaluation import analyse, speed_at_stations
+
+    c = offset_circle_coefficients(-0.08 + 0.03j, 6)[None]
+    for tau in (0.0, 0.2):
+        an = analyse(SectionSet(c, np.array([tau])), cl=0.5, proxies=())
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            for side in ("upper", "lower"):
+                q = speed_at_stations(an, np.array([0.5, 1.0 - 1e-7, 1.0]), side)[0]
+                assert np.all(np.isfinite(q))
+                if tau > 0:
+                    assert q[2] == 0.0  # the stagnation point (approached slowly: q ~ r^{τ/(2π − τ)})
+                else:
+                    assert q[2] == pytest.approx(q[1], abs=2e-3)  # the cusp's limit

@@ -332,17 +332,24 @@ def _valid_only(flow: FlowState, status: np.ndarray) -> FlowState:
 def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarray:
     """Speed ratio q = V/V∞ at chord stations ``x`` (M,) on one surface, shape (B, M).
 
-    The points are exact contour points (Newton on the map), so the speed is exact there.
+    The points are exact contour points (Newton on the map), so the speed is exact there.  At
+    the trailing edge itself (x ≥ 1) the speed is its limit: 0 at a finite edge angle (the
+    stagnation point), and at a cusp the limit along the surface (taken 1e-9 c before it).
     """
     from foilmap.section.geometry import exact_points_at_x
 
     if surface not in ("upper", "lower"):
         raise ValueError(f"surface must be 'upper' or 'lower', not {surface!r}")
     x = np.asarray(x, dtype=float)
+    at_te = x >= 1.0
+    x = np.where(at_te, 1.0 - 1e-9, x)
     keys = -x if surface == "upper" else x
     sec, fl = analysis.sections, analysis.flow
-    _, phi = exact_points_at_x(sec, analysis.frame, analysis.split, keys, return_phi=True)
-    return speed_on_circle(fl, phi, map_at(sec, np.exp(1j * phi)).dz)
+    with np.errstate(all="ignore"):
+        _, phi = exact_points_at_x(sec, analysis.frame, analysis.split, keys, return_phi=True)
+        q = speed_on_circle(fl, phi, map_at(sec, np.exp(1j * phi)).dz)
+    finite_angle = (sec.te_angle > 0.0)[:, None]
+    return np.where(at_te[None, :] & finite_angle, 0.0, q)
 
 
 def surface_distribution(analysis: Analysis, points: int = 201, spacing: str = "cosine"):
