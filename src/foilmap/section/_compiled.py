@@ -367,15 +367,29 @@ def _refine_max(a, a0, k, u, alpha_c, lo, hi):
 @njit(cache=True)
 def _arc_speed_bound(zmin, kz, q2, q, phi, delta, u, alpha_c):
     """Upper bound of q over |φ' − φ| ≤ δ: the smaller of max|w| / min|z'| and a second-order
-    bound on ln q = ln|w| − ln|z'| (Taylor with the bounds of (ln|w|)'' and (ln|z'|)'')."""
-    s = math.sin(phi - alpha_c) + math.sin(alpha_c)
+    bound on ln q = ln|w| − ln|z'| (Taylor with an upper bound of (ln|w|)'' and the bound of
+    |(ln|z'|)''|)."""
+    sn = math.sin(phi - alpha_c)
+    s = sn + math.sin(alpha_c)
     c = math.cos(phi - alpha_c)
     ub = 2.0 * u * (abs(s) + abs(c) * delta + 0.5 * delta * delta) / zmin
     smin = abs(s) - delta
     if smin > 0.0:
-        # (ln|s|)'' = (s'' s − s'²)/s² with |s'' s − s'²| ≤ |s| + 1
+        # ln q = ln|s| − ln|z'| + const, so (ln q)'' ≤ sup (ln|s|)'' + K_z.  (ln|s|)'' =
+        # (s'' s − s'²)/s² is bounded above on the arc by its value at the centre plus δ times
+        # |(ln|s|)'''| ≤ 1/s_min + 3/s_min² + 2/s_min³ (|s'|, |s''|, |s'''| ≤ 1), and by
+        # (|s| + δ + 1)/s_min²; near a suction peak it is negative, which tightens the bound
         kw = (abs(s) + delta + 1.0) / (smin * smin)
-        ub2 = q * math.exp(abs(c / s + q2.imag) * delta + 0.5 * (kw + kz) * delta * delta)
+        g2 = (-sn * s - c * c) / (s * s)
+        k3 = (1.0 + (3.0 + 2.0 / smin) / smin) / smin
+        m = min(kw, g2 + delta * k3) + kz
+        ad = abs(c / s + q2.imag)
+        # the largest of d t + m t²/2 over |t| ≤ δ
+        if m >= 0.0 or ad >= -m * delta:
+            ex = ad * delta + 0.5 * m * delta * delta
+        else:
+            ex = ad * ad / (-2.0 * m)
+        ub2 = q * math.exp(ex)
         if ub2 < ub:
             ub = ub2
     return ub
