@@ -420,8 +420,11 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
     best = -1.0
     best_phi = 0.0
     qs = np.empty(p)
+    ss = np.empty(p)  # |s| = |sin(φ − α') + sin α'| at the samples
     for j in range(p):
-        q = 2.0 * u * abs(math.sin(phis[j] - alpha_c) + sa) / abs(dzs[j])
+        sj = abs(math.sin(phis[j] - alpha_c) + sa)
+        ss[j] = sj
+        q = 2.0 * u * sj / abs(dzs[j])
         qs[j] = q
         if q > best:
             best = q
@@ -438,11 +441,15 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
                 best_phi = pr
     top = 0
     limit = max(best, floor) * (1.0 + tol)
+    d0 = 0.5 * step
+    wpad = d0 + 0.5 * d0 * d0  # |s| grows by at most |s'| δ + δ²/2 ≤ δ + δ²/2 over an arc
     for j in range(p):
         te = j == 0 or j == p - 1
-        if not te and oks[j] and _arc_speed_bound(zmins[j], kzs[j], q2s[j], qs[j], phis[j],
-                                                  0.5 * step, u, alpha_c) <= limit:
-            continue
+        if not te and oks[j]:
+            # max|w| / min|z'| first (no transcendental); the second-order bound where it fails
+            if 2.0 * u * (ss[j] + wpad) / zmins[j] <= limit or _arc_speed_bound(
+                    zmins[j], kzs[j], q2s[j], qs[j], phis[j], d0, u, alpha_c) <= limit:
+                continue
         sc[top] = phis[j]
         sd[top] = 0.5 * step
         ste[top] = te
