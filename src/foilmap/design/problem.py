@@ -63,9 +63,6 @@ class Problem:
         return [n for n, _ in self.objectives]
 
     @cached_property
-    def _spec_list(self) -> list[tuple[str, float, object]]:
-        return self._specs()
-
     def _specs(self) -> list[tuple[str, float, object]]:
         """The study's constraints as (name, typical size, g(ev, st, peak) ≤ 0), in log order
         (every bound is bound into its function as a default argument; ``st`` holds the exact
@@ -134,15 +131,15 @@ class Problem:
 
     @property
     def constraint_names(self) -> list[str]:
-        names = [n for n, _, _ in self._spec_list]
+        names = [n for n, _, _ in self._specs]
         if self.epsilon is not None:
             names.append(f"epsilon_{self.objective_names[1]}")
         return names
 
     @property
     def constraint_scales(self) -> np.ndarray:
-        """Typical size of each constraint (see :meth:`_specs`), in log order."""
-        out = [sc for _, sc, _ in self._spec_list]
+        """Typical size of each constraint (see :attr:`_specs`), in log order."""
+        out = [sc for _, sc, _ in self._specs]
         if self.epsilon is not None:
             out.append(max(0.05 * abs(self.epsilon), 1e-3))
         return np.array(out)
@@ -276,7 +273,7 @@ class Problem:
         return np.sqrt(np.mean(d * d, axis=1))
 
     def _constraints(self, ev, st, peak) -> np.ndarray:
-        cols = [fn(ev, st, peak) for _, _, fn in self._spec_list]
+        cols = [fn(ev, st, peak) for _, _, fn in self._specs]
         nb = ev.status.shape[0]
         return np.stack(cols, axis=1) if cols else np.zeros((nb, 0))
 

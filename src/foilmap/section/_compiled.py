@@ -265,6 +265,15 @@ def _local_bounds(a, zeta, h, delta, l1, l2, l3, l4):
 
 
 @njit(cache=True)
+def _split_arc_bounds(a, zeta, g, e, h, d, k, consts):
+    """:func:`_arc_bounds` of the arc of half-width d about ζ (mapped to g, e, h) with its
+    :func:`_local_bounds`: what the branch and bounds ask of an arc they split."""
+    l1 = consts[0]
+    b1, b2, b3 = _local_bounds(a, zeta, h, d, l1, consts[1], consts[2], consts[10])
+    return _arc_bounds(g, e, h, d, k, b1, b2, b3, math.exp(l1 * d))
+
+
+@njit(cache=True)
 def _grid_bounds(a, zeta, gs, es, hs, delta, k, l1, l2, l3, l4, oks, zmins, kzs, dlogs, gds):
     x = math.exp(l1 * delta)
     for j in range(gs.shape[0]):
@@ -410,8 +419,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
     faster than max(q_max, floor) (1 + tol).  A flow whose speeds stay well below the floor is
     cleared at the coarsest arcs.
     """
-    l1, l2, l3, gdte, mm, omh1 = consts[0], consts[1], consts[2], consts[3], consts[4], consts[5]
-    l4 = consts[10]
+    l1, l2, gdte, mm, omh1 = consts[0], consts[1], consts[3], consts[4], consts[5]
     p = phis.shape[0]
     step = _TWO_PI / p
     u = math.exp(a0.real)
@@ -470,7 +478,8 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
         for i in range(2):
             cc = c - hd if i == 0 else c + hd
             spent += 1
-            g, e, h, z, dz, q2 = map_point(a, a0, k, cc)
+            zc = complex(math.cos(cc), math.sin(cc))
+            g, e, h, z, dz, q2 = _map_zeta(a, a0, k, zc)
             q = 2.0 * u * abs(math.sin(cc - alpha_c) + sa) / abs(dz)
             if q > best:
                 best = q
@@ -482,9 +491,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
                 ste[top] = True
                 top += 1
                 continue
-            b1, b2, b3 = _local_bounds(a, complex(math.cos(cc), math.sin(cc)), h, hd, l1, l2,
-                                       l3, l4)
-            ok, zmin, kz, _, _ = _arc_bounds(g, e, h, hd, k, b1, b2, b3, math.exp(l1 * hd))
+            ok, zmin, kz, _, _ = _split_arc_bounds(a, zc, g, e, h, hd, k, consts)
             if ok and _arc_speed_bound(zmin, kz, q2, q, cc, hd, u, alpha_c) <= limit:
                 continue
             sc[top] = cc
@@ -846,8 +853,8 @@ def _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le, sc
     expansion θ → π/2 + arg(1 − h(1)) + (k − 1)(±π/2 + arg(1 − h(1))) + arg(scale).
     Returns V_OK or V_FOLDED.
     """
-    l1, l2, l3, gdte, mm, omh1, arg1h = (consts[0], consts[1], consts[2], consts[3], consts[4],
-                                         consts[5], consts[6])
+    l1, l2, gdte, mm, omh1, arg1h = (consts[0], consts[1], consts[3], consts[4], consts[5],
+                                     consts[6])
     p = phis.shape[0]
     step = _TWO_PI / p
     top = 0
@@ -888,12 +895,11 @@ def _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le, sc
                 if _arg_dist(theta0, math.pi if upper else 0.0) + v < _HALF_PI:
                     continue
         else:
-            g, e, h, z, dz, q2 = map_point(a, a0, k, c)
-            b1, b2, b3 = _local_bounds(a, complex(math.cos(c), math.sin(c)), h, d, l1, l2, l3,
-                                       consts[10])
-            ok, zmin, kz, dlog, gd = _arc_bounds(g, e, h, d, k, b1, b2, b3, math.exp(l1 * d))
+            zc = complex(math.cos(c), math.sin(c))
+            g, e, h, z, dz, q2 = _map_zeta(a, a0, k, zc)
+            ok, zmin, kz, dlog, gd = _split_arc_bounds(a, zc, g, e, h, d, k, consts)
             if ok:
-                tang = 1j * complex(math.cos(c), math.sin(c)) * dz
+                tang = 1j * zc * dz
                 theta = math.atan2(tang.imag, tang.real) + scale_arg
                 v = d * (1.0 + dlog)
                 if c - d - 1e-9 <= phi_le <= c + d + 1e-9:
@@ -1379,8 +1385,9 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
                 break
             q_all = max(q_all, qm)
         peaks[b] = q_all * q_all - 1.0
-        z_pk = (map_point(a, a0, k, phi_pk)[3] - z_le) * scale if q_pk == q_pk else complex(
-            math.nan, 0.0)
+        z_pk = complex(math.nan, 0.0)  # the design Cl's own peak, where it was asked for
+        if not math.isnan(q_pk):
+            z_pk = (map_point(a, a0, k, phi_pk)[3] - z_le) * scale
         # Cm c/4 from three Laurent coefficients (Blasius; see foilmap.section.flow)
         a1 = a[0]
         a2 = a[1] if a.shape[0] > 1 else 0j
@@ -1511,7 +1518,7 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         f[19] = st_m
         f[20] = st_up
         f[21] = st_lo
-        f[22] = (1.0 if phi_pk < phi_le else 0.0) if q_pk == q_pk else math.nan
+        f[22] = math.nan if math.isnan(q_pk) else (1.0 if phi_pk < phi_le else 0.0)
         if not (math.isfinite(f[0]) and math.isfinite(f[1]) and math.isfinite(f[5])
                 and math.isfinite(peaks[b]) and math.isfinite(f[8]) and math.isfinite(f[12])):
             status[b] = V_NON_FINITE

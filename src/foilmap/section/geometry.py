@@ -77,15 +77,19 @@ def chord_frame(sections: SectionSet, mv: MapValues, grid: CircleGrid) -> ChordF
     return ChordFrame(phi_le, z_le, np.abs(te_minus_le), np.angle(te_minus_le), 1.0 / te_minus_le)
 
 
-
-def leading_edge_radius(sections: SectionSet, points: int = 256) -> np.ndarray:
-    """Exact leading-edge radius of valid sections, in chords, (B,): 1/κ at φ_LE with
-    κ = Re(1 + ζz''/z') / |z'| (what :func:`section_geometry` reports, without the rest)."""
-    grid = CircleGrid.get(points, sections.n_coefficients)
-    frame = chord_frame(sections, map_on_grid(sections, grid), grid)
+def _le_radius(sections: SectionSet, frame: ChordFrame) -> np.ndarray:
+    """Exact leading-edge radius in chords, (B,): 1/κ at φ_LE, κ = Re(1 + ζz''/z') / |z'|."""
     m = map_at(sections, np.exp(1j * frame.phi_le)[:, None])
     with np.errstate(all="ignore"):
         return np.abs(m.dz[:, 0]) / np.real(1.0 + m.q2[:, 0]) / frame.chord
+
+
+def leading_edge_radius(sections: SectionSet, points: int = 256) -> np.ndarray:
+    """Exact leading-edge radius of valid sections, in chords, (B,) (what
+    :func:`section_geometry` reports, without the rest)."""
+    grid = CircleGrid.get(points, sections.n_coefficients)
+    return _le_radius(sections, chord_frame(sections, map_on_grid(sections, grid), grid))
+
 
 @dataclass(frozen=True)
 class SurfaceSplit:
@@ -262,10 +266,7 @@ def section_geometry(
     t_x, t_max, c_x, c_abs = _refine_maxima(
         sections, frame, split, xs, t, sign[:, None] * cam, sign
     )
-    # leading-edge radius of curvature at φ_LE, in chords
-    m = map_at(sections, np.exp(1j * frame.phi_le)[:, None])
-    with np.errstate(all="ignore"):
-        radius = np.abs(m.dz[:, 0]) / np.real(1.0 + m.q2[:, 0]) / frame.chord
+    radius = _le_radius(sections, frame)
     # area: ½ Σ Im(conj(zc) dzc/dφ) Δφ, dzc/dφ = iζ z' · scale
     zc = frame.to_chord(mv.z) if zc is None else zc
     dzc = 1j * mv.zeta * mv.dz * frame.scale[:, None]
