@@ -1,5 +1,5 @@
 """Starting from an existing section: NACA four-digit coordinates, the conformal fit, the
-handbook checks, the round trip, and bad coordinate files."""
+handbook checks and the round trip (coordinate files themselves: test_coordfile.py)."""
 
 from __future__ import annotations
 
@@ -21,7 +21,7 @@ from foilmap.section.fitting import (
 )
 from foilmap.section.geometry import coordinates
 from foilmap.section.naca import naca4_coordinates, naca4_surfaces
-from foilmap.store.coordfile import normalise_loop, parse_coordinates
+from foilmap.store.coordfile import normalise_loop
 
 
 def fitted(code: str, n: int = 48, points: int = 401):
@@ -138,82 +138,6 @@ def test_round_trip_recovers_coefficients_cl_and_cp(shaped):
     q0 = speed_at_stations(an, xs)[0]
     q1 = speed_at_stations(analyse(back, alpha=math.radians(3.0)), xs)[0]
     np.testing.assert_allclose(1 - q1**2, 1 - q0**2, atol=5e-3)
-
-
-LOOP = "\n".join(f"{x:.8f} {y:.8f}" for x, y in naca4_coordinates("2412", 61))
-
-
-def surfaces_text():
-    xy = naca4_coordinates("2412", 61)
-    le = int(np.argmin(xy[:, 0]))
-    up, lo = xy[: le + 1][::-1], xy[le:]
-    rows = [f"{len(up)}. {len(lo)}."] + [f"{x:.8f} {y:.8f}" for x, y in up]
-    rows += [f"{x:.8f} {y:.8f}" for x, y in lo]
-    return "NACA 2412 two surfaces\n" + "\n".join(rows)
-
-
-@pytest.mark.parametrize("text,layout,rev", [
-    ("NACA 2412\n" + LOOP, "loop", False),
-    ("# a comment\nNACA 2412\n" + "\n".join(LOOP.splitlines()[::-1]), "loop", True),
-    (surfaces_text(), "surfaces", False),
-    ("x,y\n" + LOOP.replace(" ", ","), "csv (loop)", False),
-])
-def test_layouts_are_detected(text, layout, rev):
-    c = parse_coordinates(text, "f.dat")
-    assert c.layout == layout and c.reversed == rev
-    xy = c.xy
-    assert tuple(xy[0]) == (1.0, 0.0) and tuple(xy[-1]) == (1.0, 0.0)
-    le = c.le_index
-    assert np.all(xy[1:le, 1] > 0) and np.all(xy[le + 1 : -1, 1] < 0)
-
-
-def test_open_trailing_edge_is_reported_and_closed():
-    xy = naca4_coordinates("0012", 101, closed_te=False)
-    c = normalise_loop(xy, "open")
-    assert c.te_gap == pytest.approx(0.00252, abs=2e-5)  # open-edge formula, see above
-    assert c.closing_shift == pytest.approx(c.te_gap / 2, rel=1e-6)
-    assert tuple(c.xy[0]) == (1.0, 0.0)
-
-
-def _bad(kind):
-    rows = LOOP.splitlines()
-    if kind == "few":
-        return "\n".join(rows[:8])
-    if kind == "open":
-        return "\n".join(rows[: len(rows) // 2 + 5])
-    if kind == "cross":
-        xy = naca4_coordinates("0012", 61)
-        xy[10], xy[50] = xy[50].copy(), xy[10].copy()
-        return "\n".join(f"{x} {y}" for x, y in xy)
-    if kind == "dup":
-        return "\n".join(rows[:20] + [rows[19]] + rows[20:])
-    if kind == "text":
-        return "[section]\nname = 'x'\n"
-    if kind == "word":
-        return "\n".join(rows[:20] + ["0.5 abc"] + rows[20:])
-    if kind == "three":
-        return "\n".join(rows[:20] + ["0.5 0.1 0.2"] + rows[20:])
-    raise AssertionError(kind)
-
-
-@pytest.mark.parametrize("kind,message", [
-    ("few", "has 8 points; at least 12 are needed"),
-    ("open", "the contour is not closed"),
-    ("cross", "the contour crosses itself"),
-    ("dup", "duplicate point"),
-    ("text", "this does not look like a coordinates file"),
-    ("word", "line 21 is not numeric"),
-    ("three", "line 21 has 3 numbers; expected two"),
-])
-def test_bad_coordinate_files(tmp_path, kind, message):
-    p = tmp_path / "bad.dat"
-    p.write_text(_bad(kind))
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "fit", str(p), "-o",
-                        str(tmp_path / "s.toml")], capture_output=True, text=True, timeout=60)
-    assert r.returncode == 2
-    lines = r.stderr.strip().splitlines()
-    assert len(lines) == 1 and message in lines[0], r.stderr
-    assert not (tmp_path / "s.toml").exists()
 
 
 def test_fit_command_and_a_study_started_from_it(tmp_path):

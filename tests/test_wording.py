@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import csv
 import io
 import json
 
@@ -87,19 +88,26 @@ def test_fit_counts_the_points_of_the_file(tmp_path):
 
 
 def test_out_of_order_point_names_its_line(tmp_path):
-    cli("naca", "2412", "-n", "41", "-o", tmp_path / "n.dat")
-    lines = (tmp_path / "n.dat").read_text().splitlines()
-    lines[5], lines[7] = lines[7], lines[5]
-    (tmp_path / "bad.dat").write_text("\n".join(lines) + "\n")
+    from foilmap.section.naca import naca4_coordinates
+
+    # NACA 2412 from the formula (41 points, name on line 1) with the point on line 8 moved
+    # aft of its predecessor: x must fall along the upper surface towards the leading edge
+    xy = naca4_coordinates("2412", 41)
+    xy[6, 0] += 0.1
+    (tmp_path / "bad.dat").write_text(
+        "NACA 2412\n" + "\n".join(f"{x:.8f} {y:.8f}" for x, y in xy) + "\n")
+    point = f"({float(f'{xy[6, 0]:.8f}'):g}, {float(f'{xy[6, 1]:.8f}'):g})"
     r = cli("fit", tmp_path / "bad.dat", "-n", "8", "-o", tmp_path / "b.toml")
-    assert r.returncode == 2 and "line 7" in r.stderr and "out of order" in r.stderr
+    assert r.returncode == 2, r.stderr
+    assert f"line 8: the point {point} is out of order" in r.stderr, r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "b.toml").exists()
-    # the same file as a study's start: one line, exit 2
+    # the same file as a study's start: the same line named, exit 2, nothing written
     (tmp_path / "s.toml").write_text(small_study("st", [1], 60).replace(
         "coefficients = 4", 'coefficients = 4\nstart = "bad.dat"'))
     r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out")
-    assert r.returncode == 2 and "out of order" in r.stderr
+    assert r.returncode == 2 and f"line 8: the point {point} is out of order" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and not (tmp_path / "out").exists()
 
 
 @pytest.mark.parametrize("code", ["9999", "0150", "2012", "0412", "12", "abcd"])
@@ -176,14 +184,47 @@ def test_export_all_writes_the_merged_front(tmp_path):
     assert len(folders) == len(merged) > 0
     assert "exporting" in r.stderr  # progress on long work
     summary = (tmp_path / "bundle" / "summary.csv").read_text()
+    rows = list(csv.DictReader(ln for ln in summary.splitlines() if not ln.startswith("#")))
+    # one summary row per front design and per folder written, every design named in a row
+    assert len(rows) == len(merged)
+    assert sorted(r["folder"] for r in rows) == sorted(p.name for p in folders)
     ids = {d.id.replace("#", "-") for d in merged}
-    assert all(any(i in line for line in summary.splitlines()) for i in ids)
-    assert np.isfinite(len(ids))
+    assert len(ids) == len(merged)
+    assert all(any(i in r["design"] for r in rows) for i in ids), (ids, rows)
+
+
+def _floats(obj):
+    """Every float in a JSON value, with its path."""
+    if isinstance(obj, float):
+        yield "", obj
+    elif isinstance(obj, dict):
+        for k, v in obj.items():
+            yield from ((f"{k}.{p}", x) for p, x in _floats(v))
+    elif isinstance(obj, list):
+        for i, v in enumerate(obj):
+            yield from ((f"{i}.{p}", x) for p, x in _floats(v))
 
 
 def test_status_json_is_rounded(tmp_path):
+    from foilmap.store.folder import StudyFolder
+
     (tmp_path / "s.toml").write_text(small_study("r", [1], 60))
-    cli("run", tmp_path / "s.toml", "--out", tmp_path / "out", "--workers", "1")
+    r = cli("run", tmp_path / "s.toml", "--out", tmp_path / "out", "--workers", "1")
+    assert r.returncode == 0, r.stderr
     r = cli("status", tmp_path / "out", "--json")
+    assert r.returncode == 0, r.stderr
     st = json.loads(r.stdout)
     assert st["runs"][0]["state"] == "complete"
+    raw = StudyFolder(tmp_path / "out").status()  # the same figures before display rounding
+    shown = dict(_floats(st))
+    # the objective and the time are figures of full double precision (17 digits) in the log
+    for key in ("runs.0.best.", "runs.0.elapsed_s.", "evaluations_per_s."):
+        assert key in shown, sorted(shown)
+    assert shown["runs.0.best."] == float(f"{raw['runs'][0]['best']:.12g}")
+    assert shown["runs.0.elapsed_s."] == float(f"{raw['runs'][0]['elapsed_s']:.12g}")
+    # no float printed with more than 12 significant digits, and no negative zero
+    for path, v in shown.items():
+        digits = repr(abs(v)).split("e")[0].replace(".", "").strip("0")  # shortest repr
+        assert len(digits) <= 12, (path, v)
+        assert not (v == 0 and str(v).startswith("-")), path
+    assert '"best": -0.0' not in r.stdout
