@@ -260,13 +260,20 @@ def cmd_plot(args) -> int:
     return EXIT_OK
 
 
-def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None) -> int:
+def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None,
+                wait: bool = False, what: str = "foilmap run") -> int:
     from foilmap.report.progress import Progress
     from foilmap.run.local import run_study
+    from foilmap.store.lock import describe_holder
+
+    def waiting(holder):
+        print(f"foilmap: {str(out)!r} is in use by {describe_holder(holder)}; waiting for it",
+              file=sys.stderr, flush=True)
 
     summaries = run_study(study, out, workers=workers, budget=budget,
                           progress=Progress.for_study(study, budget), engine=engine,
-                          scheduler=scheduler)
+                          scheduler=scheduler, wait=None if wait else 0.0, what=what,
+                          on_wait=waiting)
     failed = [s for s in summaries if s.get("state") != "complete"]
     from foilmap.report.text import plural
 
@@ -290,7 +297,8 @@ def cmd_run(args) -> int:
 
     study = load_study(args.study)
     out = Path(args.out) if args.out else Path("results") / study.name
-    return _run_folder(study, out, args.workers, args.budget, args.engine, args.scheduler)
+    return _run_folder(study, out, args.workers, args.budget, args.engine, args.scheduler,
+                       args.wait, "foilmap run")
 
 
 def cmd_resume(args) -> int:
@@ -298,7 +306,8 @@ def cmd_resume(args) -> int:
 
     out = Path(args.folder)
     study = StudyFolder(out).study
-    return _run_folder(study, out, args.workers, None, args.engine, args.scheduler)
+    return _run_folder(study, out, args.workers, None, args.engine, args.scheduler,
+                       args.wait, "foilmap resume")
 
 
 def cmd_status(args) -> int:
@@ -781,12 +790,16 @@ def build_parser() -> argparse.ArgumentParser:
     r.add_argument("--budget", type=_int_range("budget", 10, 10**9), metavar="EVALS",
                    help="evaluation budget of each run, replacing the study's")
     _add_engine(r)
+    r.add_argument("--wait", action="store_true",
+                   help="if another foilmap is writing the folder, wait for it (default: stop)")
     r.set_defaults(func=cmd_run)
 
     rs = sub.add_parser("resume", help="finish the unfinished runs of a study folder")
     rs.add_argument("folder", help="study folder")
     rs.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
     _add_engine(rs)
+    rs.add_argument("--wait", action="store_true",
+                    help="if another foilmap is writing the folder, wait for it (default: stop)")
     rs.set_defaults(func=cmd_resume)
 
     s_ = sub.add_parser("status", help="progress of every run of a study folder (also live)")

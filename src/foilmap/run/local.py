@@ -13,6 +13,7 @@ from __future__ import annotations
 import multiprocessing as mp
 import os
 import signal
+import sys
 import threading
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
@@ -23,6 +24,7 @@ from foilmap.design.study import RunSpec, Study
 from foilmap.errors import InputError
 from foilmap.run.single import init_worker, worker
 from foilmap.store.folder import INDEXED, StudyFolder
+from foilmap.store.lock import FOLDER_LOCK, Lock
 
 __all__ = ["run_study", "ABORT_GRACE"]
 
@@ -67,14 +69,20 @@ class _single_threaded_kernels:
 
 
 def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
-              progress=None, engine: str | None = None, scheduler: str | None = None
-              ) -> list[dict]:
+              progress=None, engine: str | None = None, scheduler: str | None = None,
+              wait: float | None = 0.0, what: str = "foilmap run", on_wait=None) -> list[dict]:
     """Run every unfinished run of a study; returns the summaries of the runs run now.
 
     ``engine`` is ``"local"`` (a process pool of ``workers`` on this machine) or ``"dask"`` (a
     Dask cluster at ``scheduler``, or a LocalCluster of ``workers`` when no address is given).
     The same study and seeds give the same logs on every engine.  What is not given comes
     from the study's ``[engine]`` table.
+
+    One driver writes a study folder at a time: the folder's lock (``DIR/writer.lock``) is held
+    throughout.  When another process holds it, ``wait`` says how long to wait for it (seconds;
+    None: for ever; 0, the default: not at all) before :class:`~foilmap.store.lock.Busy` (an
+    ``InputError``) names the holder in one line; ``what`` is how this driver names itself there,
+    and ``on_wait(holder)`` is called once if it waits.
     """
     engine = engine or study.engine["kind"]
     scheduler = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
@@ -82,7 +90,23 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     if scheduler and engine != "dask":
         raise InputError("a scheduler address needs the dask engine (engine = dask, or "
                          "kind = \"dask\" in [engine])")
+    if engine not in ("local", "dask"):
+        raise InputError(f"engine {engine!r} is not one of: local, dask")
     out = Path(out)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the study folder {str(out)!r}: "
+                         f"{exc.strerror or exc}") from None
+    lock = Lock(out / FOLDER_LOCK, what, label=f"study folder {str(out)!r}")
+    lock.acquire(wait=wait, on_wait=on_wait)
+    try:
+        return _run_locked(study, out, workers, budget, progress, engine, scheduler)
+    finally:
+        lock.release()
+
+
+def _run_locked(study, out, workers, budget, progress, engine, scheduler) -> list[dict]:
     # a budget set on the study object is recorded like --budget, so that resume keeps it
     folder, study = StudyFolder.prepare(study, out,
                                         budget if budget is not None else study.budget)
@@ -104,8 +128,6 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
 
         _compiled.warm_up()
     args = (study,)
-    if engine not in ("local", "dask"):
-        raise InputError(f"engine {engine!r} is not one of: local, dask")
     with _single_threaded_kernels():  # a LocalCluster starts its workers here
         if engine == "dask":
             from foilmap.run.cluster import DaskBackend
@@ -122,8 +144,10 @@ class _LocalBackend:
     def __init__(self, workers: int):
         ctx = mp.get_context("spawn")
         self.queue = ctx.Queue()
+        # each worker dies with this driver (init_worker: parent-death signal and a watcher)
         self.pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx,
-                                        initializer=init_worker, initargs=(self.queue,))
+                                        initializer=init_worker,
+                                        initargs=(self.queue, os.getpid()))
 
     def submit(self, args, run_id: str, out: Path):
         with _single_threaded_kernels():  # the pool starts its workers on submission
@@ -184,8 +208,15 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
                     s = {"run": r.run_id, "state": RunState.FAILED.value,
                          "error": f"{type(exc).__name__}: {exc}"}
                 summaries.append(s)
+                note = states.get(r.run_id, {}).get("note")
+                for line in s.get("notes", []):
+                    if line != note:
+                        _say(progress, line)
+                        note = line
                 states[r.run_id] = {k: s.get(k) for k in INDEXED + ("error",)
                                     if s.get(k) is not None}
+                if note:
+                    states[r.run_id]["note"] = note
                 if progress is not None:
                     progress.run_ended(r.run_id, s["state"], s.get("best"), s.get("error"), s)
                 folder.write_index(states)
@@ -215,11 +246,25 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
     return summaries
 
 
+def _say(progress, line: str) -> None:
+    """One line about a run (a repair on resume) where the progress goes: standard error."""
+    stream = getattr(progress, "stream", None) or sys.stderr
+    if getattr(progress, "tty", False):
+        stream.write("\r\033[K")
+    stream.write(line + "\n")
+    stream.flush()
+
+
 def _drain(messages, progress, states) -> bool:
     """Take the workers' progress messages; True when a run has just started running."""
     started = False
     for msg in messages:
         st = states.setdefault(msg["run"], {})
+        if "note" in msg:  # a run's files needed repair: one line, kept in the index
+            st["note"] = msg["note"]
+            _say(progress, msg["note"])
+            started = True  # (the index is rewritten)
+            continue
         if st.get("state") not in (RunState.COMPLETE.value, RunState.FAILED.value,
                                  RunState.RUNNING.value):  # not a late message
             st["state"] = RunState.RUNNING.value

@@ -3,12 +3,17 @@
 Engines (:mod:`foilmap.run.local`, :mod:`foilmap.run.cluster`) hand :func:`worker` the validated
 study and a run id; the run commits its log rows, then its checkpoint, at most every
 :data:`COMMIT_INTERVAL` seconds, so a killed run resumes bit-identically from its last commit.
+One process writes a run at a time: :func:`execute_run` holds the run's lock
+(``DIR/runs/ID.lock``, :mod:`foilmap.store.lock`) while it writes, and before continuing a run
+it checks that the checkpoint and the log agree (:func:`recover`).
 """
 
 from __future__ import annotations
 
+import ctypes
 import os
 import signal
+import threading
 import time
 from pathlib import Path
 
@@ -18,42 +23,140 @@ from foilmap.design.results import RunState
 from foilmap.design.study import RunSpec, Study
 from foilmap.report.text import CAUTION
 from foilmap.store.folder import StudyFolder
+from foilmap.store.lock import Busy, Lock
 from foilmap.store.runlog import (
+    CheckpointError,
+    RunLog,
     RunLogWriter,
+    generation_digest,
     load_checkpoint,
     read_run,
     save_checkpoint,
 )
 
-__all__ = ["execute_run", "worker", "init_worker", "COMMIT_INTERVAL", "RUN_ATTEMPTS"]
+__all__ = ["execute_run", "recover", "worker", "init_worker", "COMMIT_INTERVAL",
+           "RUN_ATTEMPTS", "RUN_LOCK_WAIT"]
 
 _QUEUE = None  # progress queue of a worker process
 #: seconds between commits of a run (log rows flushed, then the checkpoint renamed into place):
 #: a killed run loses at most this much search, and per-generation costs (HDF5 writes, the
 #: checkpoint pickle) are paid at most once a second when generations are fast
 COMMIT_INTERVAL = 1.0
+#: seconds a run waits for its lock when another process holds it (an orphaned worker of a
+#: killed driver commits and leaves within about a second); then the run is refused
+RUN_LOCK_WAIT = 30.0
+
+#: why a log's own figures do not seed a restarted search (said in the note)
+_NO_SEED_FROM_LOG = ("the log keeps CMA-ES's mean and step size, not its covariance, evolution "
+                     "paths and random state, so its figures could not continue it "
+                     "bit-identically")
+
+
+def _seed_note(run_id: str, why: str, log: RunLog | None) -> str:
+    gens = log.generations if log is not None else 0
+    if gens:
+        return (f"run {run_id}: {why}; restarts from its seed and recomputes its "
+                f"{gens} logged generations to the same bits ({_NO_SEED_FROM_LOG})")
+    return f"run {run_id}: {why}; restarts from its seed"
+
+
+def recover(log_path: Path, ckpt_path: Path, run_id: str):
+    """How a run continues from what its folder holds: ``(state, generation, log, note)``.
+
+    ``state`` is the checkpoint's search state when the checkpoint is sound, signed by the
+    user's key and agrees with the log (its generation is in the log, with the same number of
+    evaluations and the same checksum of that generation's rows); ``generation`` is where the log
+    is cut to continue.  Otherwise ``state`` is None and the run restarts from its seed (the
+    last generation on which both agree is then 0: a run has one checkpoint), which gives the
+    same bits as before, only later.  ``note`` is one line saying what was found and done (None
+    when nothing was amiss: a log a few rows ahead of its checkpoint is the normal state of a
+    killed run).
+    """
+    log, log_err = None, None
+    if log_path.exists():
+        try:
+            log = read_run(log_path)
+        except Exception as exc:  # noqa: BLE001 - any damage: keep what can be kept below
+            log_err = f"{type(exc).__name__}: {str(exc).splitlines()[0] if str(exc) else ''}"
+    try:
+        state, info = load_checkpoint(ckpt_path, with_info=True)
+    except CheckpointError as exc:
+        if exc.kind == "missing" and log_err is None and (log is None or not log.generations):
+            return None, 0, log, None  # a new run, or one killed before its first commit
+        if log_err is not None:
+            return None, 0, None, _seed_note(run_id, f"log {log_path.name} is damaged "
+                                             f"({log_err}) and {exc}", None)
+        return None, 0, log, _seed_note(run_id, str(exc), log)
+    g = int(info.get("generation", -1))
+    if log_err is not None:
+        # keep what is readable: the rows up to the checkpoint's generation, if they are whole
+        try:
+            log = read_run(log_path, upto=g)
+        except Exception:  # noqa: BLE001
+            return None, 0, None, _seed_note(
+                run_id, f"log {log_path.name} is damaged ({log_err})", None)
+    if log is None:
+        return None, 0, None, (None if g == 0 else _seed_note(
+            run_id, f"log {log_path.name} is missing (checkpoint at generation {g})", None))
+    why = None
+    if info.get("run") != run_id or getattr(state, "generation", None) != g:
+        why = f"checkpoint {ckpt_path.name} belongs to {info.get('run')!r}"
+    elif log.generations < g:
+        why = (f"checkpoint at generation {g} but the log holds only {log.generations} "
+               "readable generations")
+    elif g and (int(log.gen["evaluations"][g - 1]) != int(info.get("evaluations", -1))
+                or generation_digest(log.evals, log.gen, log.front_index, g)
+                != info.get("digest")):
+        why = (f"checkpoint and log disagree at generation {g} (evaluations or the "
+               "checksum of its rows)")
+    if why is not None:
+        return None, 0, log, _seed_note(run_id, why + "; rolled back to generation 0, the "
+                                        "last on which both agree", log)
+    note = None
+    if log_err is not None:
+        note = (f"run {run_id}: log {log_path.name} is damaged after generation {g} "
+                f"({log_err}); keeps its {g} whole generations and continues from the "
+                "checkpoint")
+    return state, g, log, note
 
 
 def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=None) -> dict:
     """Run (or resume, or skip if complete) one run of a study; returns a summary.
 
-    ``report``, if given, is called with a progress dict after every generation.
+    ``report``, if given, is called with a progress dict after every commit, and with
+    ``{"run", "note"}`` when the run's files needed repair (one line saying what was done).
     ``should_stop``, if given, is asked after every generation: when it answers True the run
     commits what it has (log rows, then the checkpoint), closes its log and raises
-    ``SystemExit(143)``; ``foilmap resume`` continues it bit-identically.
+    ``SystemExit(143)``; ``foilmap resume`` continues it bit-identically.  The run's lock is
+    held throughout; another process holding it makes this wait up to :data:`RUN_LOCK_WAIT`
+    seconds, then raise :class:`~foilmap.store.lock.Busy`.
     """
+    folder = StudyFolder(out)
+    log_path = folder.log_path(run.run_id)
+    log_path.parent.mkdir(parents=True, exist_ok=True)
+    lock = Lock(log_path.with_suffix(".lock"), f"run {run.run_id}", label=f"run {run.run_id}")
+    lock.acquire(wait=RUN_LOCK_WAIT)
+    try:
+        return _execute(study, run, folder, report, should_stop)
+    finally:
+        lock.release()
+
+
+def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_stop) -> dict:
     from foilmap.design.search import is_finished, new_search, step
 
-    folder = StudyFolder(out)
     log_path, ckpt_path = folder.log_path(run.run_id), folder.checkpoint_path(run.run_id)
-    log_path.parent.mkdir(parents=True, exist_ok=True)
     problem = Problem.from_run(study, run)
     if folder.is_complete(run.run_id):  # (an unreadable log, killed before its first flush,
-        return folder.summary(run.run_id)  # starts again)
-    if log_path.exists() and ckpt_path.exists():
-        state = load_checkpoint(ckpt_path)
-        writer = RunLogWriter.reopen(log_path, state.generation)
-        state.elapsed = float(read_run(log_path).gen["time"][-1]) if state.generation else 0.0
+        ckpt_path.unlink(missing_ok=True)  # starts again)
+        return folder.summary(run.run_id)
+    state, kept, old, note = recover(log_path, ckpt_path, run.run_id)
+    notes = [note] if note else []
+    if note and report is not None:
+        report({"run": run.run_id, "note": note})
+    if state is not None:
+        writer = RunLogWriter.reopen(log_path, kept, old=old)
+        state.elapsed = float(old.gen["time"][kept - 1]) if kept else 0.0
         state.started = time.time()
     else:
         for p in (log_path, ckpt_path):
@@ -79,8 +182,9 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
         writer = RunLogWriter.create(
             log_path, attrs=attrs, study_text=study.text, dimension=problem.param.dimension,
             objective_names=problem.objective_names, constraint_names=problem.constraint_names,
-            chunk_rows=state.base_popsize)
-        save_checkpoint(ckpt_path, state)
+            chunk_rows=state.base_popsize, resumes=(old.resumes + 1) if old is not None else 0)
+        _commit(writer, [], ckpt_path, state, run.run_id)
+
     with writer:
         pending = []
         last = time.monotonic()
@@ -88,12 +192,10 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
             gen, _ = step(state, problem, run.search)
             pending.append(gen)
             if should_stop is not None and should_stop():
-                writer.append(pending)
-                save_checkpoint(ckpt_path, state)
+                _commit(writer, pending, ckpt_path, state, run.run_id)
                 raise SystemExit(143)
             if time.monotonic() - last >= COMMIT_INTERVAL or is_finished(state):
-                writer.append(pending)  # write and flush the generations first ...
-                save_checkpoint(ckpt_path, state)  # ... then the checkpoint, atomically
+                _commit(writer, pending, ckpt_path, state, run.run_id)
                 pending = []
                 last = time.monotonic()
                 if report is not None:
@@ -102,7 +204,19 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
                             "feasible": gen.feasible_fraction, "sigma": gen.sigma})
         writer.finish(RunState.COMPLETE)
     ckpt_path.unlink(missing_ok=True)
-    return folder.summary(run.run_id)
+    summary = folder.summary(run.run_id)
+    if notes:
+        summary["notes"] = notes
+    return summary
+
+
+def _commit(writer: RunLogWriter, pending: list, ckpt_path: Path, state, run_id: str) -> None:
+    """Write and flush the generations first, then the signed checkpoint with the checksum of
+    the last generation's rows as written, atomically (temporary file, rename)."""
+    writer.append(pending)
+    save_checkpoint(ckpt_path, state, {"run": run_id, "generation": int(state.generation),
+                                       "evaluations": int(state.evaluations),
+                                       "digest": writer.digest()})
 
 
 def _variable_names(problem: Problem) -> list[str]:
@@ -118,6 +232,8 @@ def _variable_names(problem: Problem) -> list[str]:
 #: generation, after committing (raising from the signal handler itself could land inside an
 #: HDF5 call and leave the log half-flushed)
 _STOP = {"requested": False, "in_run": False}
+#: seconds between a worker's checks that its driver (or its Dask task) is still there
+WATCH_INTERVAL = 0.2
 
 
 def _on_sigterm(*_) -> None:
@@ -126,16 +242,70 @@ def _on_sigterm(*_) -> None:
     _STOP["requested"] = True
 
 
-def init_worker(queue) -> None:
+def _die_with_parent(sig: int = signal.SIGTERM) -> None:
+    """Ask Linux to send ``sig`` to this process when its parent dies (prctl PR_SET_PDEATHSIG;
+    nothing elsewhere: the watcher thread covers every system)."""
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, int(sig), 0, 0, 0)  # PR_SET_PDEATHSIG = 1
+    except (OSError, AttributeError):
+        pass
+
+
+def _watch_driver(driver_pid: int) -> None:
+    """Stop this worker when its driver is gone (killed outright: SIGKILL, the out-of-memory
+    killer): the parent-death signal does it on Linux; this thread, which sees the worker
+    re-parented, does it everywhere and covers a driver that died before the signal was set."""
+    while True:
+        if os.getppid() != driver_pid:
+            _on_sigterm()  # commits at the end of the generation (or leaves at once when idle)
+            return
+        time.sleep(WATCH_INTERVAL)
+
+
+def init_worker(queue, driver_pid: int | None = None) -> None:
+    """Set up a pool process: progress queue, SIGTERM as a clean stop, Ctrl-C left to the
+    driver, and death with the driver (``driver_pid``, the process that started this one)."""
     global _QUEUE
     _QUEUE = queue
     signal.signal(signal.SIGTERM, _on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
+    if driver_pid is not None:
+        _die_with_parent()
+        threading.Thread(target=_watch_driver, args=(driver_pid,), daemon=True,
+                         name="foilmap-driver-watch").start()
 
 
 #: attempts of a run inside one task before it is recorded as failed (each resumes from the
 #: run's own checkpoint)
 RUN_ATTEMPTS = 3
+
+
+def _dask_task_gone():
+    """In a Dask task: a function answering True once the task is no longer wanted (its client
+    is gone or cancelled it; asked at most once a second), else None outside Dask."""
+    try:
+        from distributed import get_worker
+        from distributed.worker import thread_state
+
+        w = get_worker()
+        key = thread_state.key
+    except (ImportError, ValueError, AttributeError):
+        return None
+    last = [time.monotonic()]
+
+    def gone() -> bool:
+        now = time.monotonic()
+        if now - last[0] < 1.0:
+            return False
+        last[0] = now
+        try:
+            ts = w.state.tasks.get(key)
+        except Exception:  # noqa: BLE001 - a worker shutting down
+            return True
+        return ts is None or ts.state in ("cancelled", "released", "forgotten")
+
+    return gone
 
 
 def worker(study: Study, run_id: str, out: str) -> dict:
@@ -144,12 +314,14 @@ def worker(study: Study, run_id: str, out: str) -> dict:
     The worker gets the validated study object (its budget applied, start files already read
     and fitted), never its text to parse again.  A run that raises is retried (from its
     checkpoint) up to :data:`RUN_ATTEMPTS` times, then recorded as failed with its error; the
-    study goes on with the rest.
+    study goes on with the rest.  A run whose lock another process keeps is refused at once.
+    In a Dask task the run commits and stops within about a second once the task is no longer
+    wanted (its client gone or cancelled).
     """
     run = next(r for r in study.runs() if r.run_id == run_id)
     q = _QUEUE
     report = (lambda m: q.put(m)) if q is not None else None
-    stop = (lambda: _STOP["requested"]) if q is not None else None
+    stop = (lambda: _STOP["requested"]) if q is not None else _dask_task_gone()
     error = None
     _STOP["in_run"] = True
     try:
@@ -163,7 +335,12 @@ def worker(study: Study, run_id: str, out: str) -> dict:
                 # once rather than wait for tasks from a driver that may be gone
                 if _QUEUE is not None:
                     os._exit(exc.code if isinstance(exc.code, int) else 143)
+                if exc.code == 143:  # a Dask task nobody wants any more: committed, stopped
+                    return {"run": run_id, "state": RunState.INTERRUPTED.value}
                 raise
+            except Busy as exc:  # another writer: retrying here would only wait again
+                error = str(exc)
+                break
             except Exception as exc:  # a failing run is recorded, the study goes on
                 error = f"{type(exc).__name__}: {exc}"
     finally:
@@ -171,5 +348,3 @@ def worker(study: Study, run_id: str, out: str) -> dict:
     if _STOP["requested"] and _QUEUE is not None:
         os._exit(143)
     return {"run": run_id, "state": RunState.FAILED.value, "error": error, "attempts": RUN_ATTEMPTS}
-
-

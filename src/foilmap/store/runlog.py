@@ -14,9 +14,13 @@ and renames it over the old one, so a half-written generation is dropped.
 
 from __future__ import annotations
 
+import hashlib
+import hmac
 import json
 import os
 import pickle
+import secrets
+import struct
 import tempfile
 import time
 from dataclasses import dataclass
@@ -25,6 +29,7 @@ from pathlib import Path
 import numpy as np
 
 from foilmap.design.results import Generation, RunState
+from foilmap.errors import InputError
 
 __all__ = [
     "SCHEMA_VERSION",
@@ -33,6 +38,12 @@ __all__ = [
     "read_run",
     "save_checkpoint",
     "load_checkpoint",
+    "read_checkpoint_info",
+    "checkpoint_problem",
+    "CheckpointError",
+    "generation_digest",
+    "key_path",
+    "KEY_ENV",
     "EVAL_FIELDS",
     "GEN_FIELDS",
 ]
@@ -83,7 +94,7 @@ class RunLogWriter:
     @classmethod
     def create(cls, path: str | Path, *, attrs: dict, study_text: str, dimension: int,
                objective_names: list[str], constraint_names: list[str],
-               chunk_rows: int) -> "RunLogWriter":
+               chunk_rows: int, resumes: int = 0) -> "RunLogWriter":
         import h5py
 
         path = Path(path)
@@ -116,7 +127,7 @@ class RunLogWriter:
             meta = f.create_group("meta")
             meta.create_dataset("state", data=np.array([RunState.RUNNING.code], dtype="i1"))
             meta.create_dataset("finished", data=np.array([np.nan]))
-            meta.create_dataset("resumes", data=np.array([0], dtype="i4"))
+            meta.create_dataset("resumes", data=np.array([resumes], dtype="i4"))
             f.swmr_mode = True
             f.flush()
         except BaseException:
@@ -125,16 +136,18 @@ class RunLogWriter:
         return cls(path, f)
 
     @classmethod
-    def reopen(cls, path: str | Path, generations: int) -> "RunLogWriter":
+    def reopen(cls, path: str | Path, generations: int, old: "RunLog | None" = None
+               ) -> "RunLogWriter":
         """Continue a log from its first ``generations`` generations (drop anything later).
 
         The kept rows are copied into a new file that replaces the old one by rename, so the
-        log is never left half-rewritten.  The resume counter is incremented.
+        log is never left half-rewritten.  The resume counter is incremented.  ``old`` is the
+        log as already read (at least its first ``generations`` generations).
         """
         import h5py
 
         path = Path(path)
-        old = read_run(path)
+        old = old if old is not None else read_run(path)
         n_eval = int(old.gen["evaluations"][generations - 1]) if generations else 0
         tmp = path.with_name(f".{path.name}.resume.tmp")
         f = h5py.File(tmp, "w", libver=_LIBVER)
@@ -198,6 +211,15 @@ class RunLogWriter:
         for name in GEN_FIELDS:
             _append(gen[name], [getattr(g, name) for g in gens])
         self.f.flush()
+
+    @property
+    def generations(self) -> int:
+        return int(self._gen["evaluations"].shape[0])
+
+    def digest(self) -> str:
+        """The checksum of the last generation's rows as written (see :func:`generation_digest`),
+        read back from the file: what a resume recomputes from the log."""
+        return generation_digest(self._ev, self._gen, self._front, self.generations)
 
     def finish(self, state: RunState = RunState.COMPLETE) -> None:
         self.f["meta/state"][0] = state.code
@@ -271,8 +293,38 @@ class RunLog:
                 "generation": int(self.evals["generation"][i])}
 
 
-def read_run(path: str | Path) -> RunLog:
-    """Read a run log, also while another process is writing it (SWMR)."""
+def generation_digest(evals, gen, front_index, g: int) -> str:
+    """SHA-256 of generation ``g``'s rows (counted from 1): its evaluation rows, its row of every
+    ``gen/*`` dataset and its archive in ``front/index``, each with its dtype and shape.  Works
+    on arrays read into memory (:class:`RunLog`) and on open datasets alike; ``""`` for g = 0.
+    The checkpoint carries the digest of its generation, so a resume can tell whether the log
+    it continues holds the very rows the checkpoint followed."""
+    if g <= 0:
+        return ""
+    h = hashlib.sha256()
+
+    def add(name, arr):
+        arr = np.ascontiguousarray(arr)
+        h.update(f"{name}:{arr.dtype.str}:{arr.shape};".encode())
+        h.update(arr.tobytes())
+
+    end = int(gen["evaluations"][g - 1])
+    start = int(gen["evaluations"][g - 2]) if g > 1 else 0
+    for k in EVAL_FIELDS:
+        add(k, evals[k][start:end])
+    for k in GEN_FIELDS:
+        add(k, gen[k][g - 1 : g])
+    if front_index is not None:
+        o, n = int(gen["front_offset"][g - 1]), int(gen["front_size"][g - 1])
+        add("front", front_index[o : o + n])
+    return h.hexdigest()
+
+
+def read_run(path: str | Path, upto: int | None = None) -> RunLog:
+    """Read a run log, also while another process is writing it (SWMR).
+
+    ``upto`` reads only the first ``upto`` generations (and their evaluations and archives):
+    what a resume keeps of a log whose later rows are damaged."""
     import h5py
 
     path = Path(path)
@@ -283,7 +335,7 @@ def read_run(path: str | Path) -> RunLog:
         gen = {}
         for k in f["gen"]:
             f["gen"][k].refresh()
-            gen[k] = f["gen"][k][()]
+            gen[k] = f["gen"][k][()] if upto is None else f["gen"][k][:upto]
         ng = min(a.shape[0] for a in gen.values())
         gen = {k: v[:ng] for k, v in gen.items()}
         ne = int(gen["evaluations"][-1]) if ng else 0
@@ -310,6 +362,71 @@ _LAST_FSYNC: dict[str, float] = {}
 #: every generation; the fsync (against a power cut) is paid at most this often
 FSYNC_INTERVAL = 10.0
 
+#: the environment variable naming the folder of foilmap's own user configuration (default
+#: ``$XDG_CONFIG_HOME/foilmap``, else ``~/.config/foilmap``), where the checkpoint key lives
+KEY_ENV = "FOILMAP_CONFIG_DIR"
+KEY_NAME = "checkpoint.key"
+#: first bytes of a signed checkpoint (format 2); format 1 was a bare pickle
+_MAGIC = b"FMCKPT2\n"
+_KEYS: dict[str, bytes] = {}
+
+
+class CheckpointError(Exception):
+    """A checkpoint that cannot be used: ``kind`` is ``"missing"``, ``"damaged"`` or
+    ``"unsigned"``; ``str(err)`` is one line."""
+
+    def __init__(self, kind: str, message: str):
+        super().__init__(message)
+        self.kind = kind
+
+
+def key_path() -> Path:
+    """Where the user's checkpoint key is kept (see :data:`KEY_ENV`)."""
+    env = os.environ.get(KEY_ENV)
+    if env:
+        return Path(env) / KEY_NAME
+    xdg = os.environ.get("XDG_CONFIG_HOME")
+    return (Path(xdg) if xdg else Path.home() / ".config") / "foilmap" / KEY_NAME
+
+
+def _key(create: bool) -> bytes | None:
+    """The user's checkpoint key (32 random bytes, hex in a file readable by the user alone);
+    created on first use when ``create``; None when there is none and ``create`` is False."""
+    p = key_path()
+    if str(p) in _KEYS:
+        return _KEYS[str(p)]
+    try:
+        text = p.read_text(encoding="ascii").strip()
+    except FileNotFoundError:
+        if not create:
+            return None
+        p.parent.mkdir(parents=True, exist_ok=True, mode=0o700)
+        tmp = p.with_name(f".{KEY_NAME}.{os.getpid()}.tmp")
+        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        try:
+            with os.fdopen(fd, "w") as fh:
+                fh.write(secrets.token_hex(32) + "\n")
+                fh.flush()
+                os.fsync(fh.fileno())
+            try:
+                os.link(tmp, p)  # never replaces a key another process made first
+            except FileExistsError:
+                pass
+        finally:
+            tmp.unlink(missing_ok=True)
+        text = p.read_text(encoding="ascii").strip()
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read the checkpoint key {str(p)!r}: {exc}") from None
+    try:
+        key = bytes.fromhex(text)
+    except ValueError:
+        key = b""
+    if len(key) < 16:
+        raise InputError(f"the checkpoint key {str(p)!r} is damaged (not a hex key of 32 "
+                         "bytes); remove it (checkpoints it signed will then restart their runs)")
+    _KEYS[str(p)] = key
+    return key
+
 
 def _file_mode() -> int:
     mask = os.umask(0)
@@ -317,13 +434,27 @@ def _file_mode() -> int:
     return 0o666 & ~mask
 
 
-def save_checkpoint(path: str | Path, state) -> None:
-    """Pickle ``state`` to ``path`` atomically (temporary file, rename; fsync every 10 s)."""
+def save_checkpoint(path: str | Path, state, info: dict | None = None) -> None:
+    """Write the signed checkpoint of ``state`` to ``path`` atomically (temporary file, rename;
+    fsync every 10 s).
+
+    The file is ``MAGIC, header length (4 bytes), header (JSON: run, generation, evaluations,
+    digest of the generation's log rows, payload length), HMAC-SHA256 (32 bytes), payload (the
+    pickled state)``; the HMAC, keyed by the user's own key (:func:`key_path`), covers all of
+    it, so :func:`load_checkpoint` unpickles only what that key signed.
+    """
     path = Path(path)
+    payload = pickle.dumps(state, protocol=pickle.HIGHEST_PROTOCOL)
+    header = json.dumps({"format": 2, **(info or {}), "payload_bytes": len(payload)},
+                        sort_keys=True).encode()
+    head = _MAGIC + struct.pack(">I", len(header)) + header
+    mac = hmac.new(_key(create=True), head + payload, hashlib.sha256).digest()
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
         with os.fdopen(fd, "wb") as fh:
-            pickle.dump(state, fh, protocol=pickle.HIGHEST_PROTOCOL)
+            fh.write(head)
+            fh.write(mac)
+            fh.write(payload)
             os.chmod(tmp, _file_mode())
             now = time.monotonic()
             if now - _LAST_FSYNC.get(str(path), -1e9) >= FSYNC_INTERVAL:
@@ -337,6 +468,79 @@ def save_checkpoint(path: str | Path, state) -> None:
         raise
 
 
-def load_checkpoint(path: str | Path):
-    with open(path, "rb") as fh:
-        return pickle.load(fh)
+def _split(path: Path) -> tuple[dict, bytes, bytes, bytes]:
+    """(header, signed bytes before the MAC, MAC, payload) of a checkpoint, checked for shape
+    only; raises :class:`CheckpointError` (missing, damaged)."""
+    try:
+        data = path.read_bytes()
+    except FileNotFoundError:
+        raise CheckpointError("missing", f"checkpoint {path.name} is missing") from None
+    except OSError as exc:
+        raise CheckpointError("damaged", f"checkpoint {path.name} cannot be read "
+                              f"({exc.strerror or exc})") from None
+    if not data.startswith(_MAGIC):
+        kind = "an unsigned checkpoint of an older foilmap" if data[:1] == b"\x80" else \
+            "not a foilmap checkpoint"
+        raise CheckpointError("unsigned" if data[:1] == b"\x80" else "damaged",
+                              f"checkpoint {path.name} is {kind}")
+    n0 = len(_MAGIC) + 4
+    if len(data) < n0:
+        raise CheckpointError("damaged", f"checkpoint {path.name} is truncated "
+                              f"({len(data)} bytes)")
+    (hlen,) = struct.unpack(">I", data[len(_MAGIC):n0])
+    try:
+        header = json.loads(data[n0:n0 + hlen])
+        if not isinstance(header, dict):
+            raise ValueError
+        size = int(header["payload_bytes"])
+    except (ValueError, KeyError, TypeError):
+        raise CheckpointError("damaged", f"checkpoint {path.name} has a damaged header "
+                              f"({len(data)} bytes)") from None
+    body = n0 + hlen + 32
+    if len(data) != body + size:
+        raise CheckpointError("damaged", f"checkpoint {path.name} is truncated or padded "
+                              f"({len(data)} bytes of {body + size})")
+    return header, data[:n0 + hlen], data[n0 + hlen:body], data[body:]
+
+
+def read_checkpoint_info(path: str | Path) -> dict:
+    """A checkpoint's header (run, generation, evaluations, digest), its shape checked but its
+    signature not: for status lines, never for loading."""
+    return _split(Path(path))[0]
+
+
+def load_checkpoint(path: str | Path, with_info: bool = False):
+    """The search state of a checkpoint that the user's key signed (and its header with
+    ``with_info``); raises :class:`CheckpointError` for a missing, damaged or unsigned one.
+    Nothing is unpickled before the signature is checked."""
+    path = Path(path)
+    header, head, mac, payload = _split(path)
+    key = _key(create=False)
+    if key is None or not hmac.compare_digest(
+            mac, hmac.new(key, head + payload, hashlib.sha256).digest()):
+        raise CheckpointError("unsigned", f"checkpoint {path.name} is not signed by this "
+                              f"user's key ({key_path()}), or is damaged; not loaded")
+    try:
+        state = pickle.loads(payload)
+    except Exception as exc:  # signed by us, so only a defect of ours; still one line
+        raise CheckpointError("damaged", f"checkpoint {path.name} cannot be unpickled "
+                              f"({type(exc).__name__})") from None
+    return (state, header) if with_info else state
+
+
+def checkpoint_problem(path: str | Path) -> str | None:
+    """One line naming what is wrong with an existing checkpoint (damaged, not signed by this
+    user's key), or None when it is sound or absent.  Creates no key."""
+    path = Path(path)
+    if not path.exists():
+        return None
+    try:
+        _, head, mac, payload = _split(path)
+    except CheckpointError as exc:
+        return str(exc)
+    key = _key(create=False)
+    if key is None or not hmac.compare_digest(
+            mac, hmac.new(key, head + payload, hashlib.sha256).digest()):
+        return (f"checkpoint {path.name} is not signed by this user's key ({key_path()}), or "
+                "is damaged")
+    return None

@@ -1,0 +1,133 @@
+"""Checkpoints are signed with the user's own key and loaded only when that key signed them;
+the checksum of a generation's rows is the same whether taken while writing or after reading."""
+
+from __future__ import annotations
+
+import os
+import pickle
+import stat
+
+import numpy as np
+import pytest
+
+from foilmap.store import runlog
+from foilmap.store.runlog import (
+    CheckpointError,
+    checkpoint_problem,
+    generation_digest,
+    key_path,
+    load_checkpoint,
+    read_checkpoint_info,
+    save_checkpoint,
+)
+
+
+@pytest.fixture(autouse=True)
+def own_key(tmp_path, monkeypatch):
+    """Every test keeps its key (and any home) in its own temporary folder."""
+    monkeypatch.setenv("FOILMAP_CONFIG_DIR", str(tmp_path / "config"))
+    monkeypatch.setenv("HOME", str(tmp_path / "home"))
+    (tmp_path / "home").mkdir()
+    return tmp_path / "config"
+
+
+STATE = {"a": np.arange(5.0), "n": 3, "rng": np.random.RandomState(7)}
+INFO = {"run": "p.s1", "generation": 4, "evaluations": 40, "digest": "ab" * 32}
+
+
+def test_a_checkpoint_round_trips_with_its_header(tmp_path, own_key):
+    p = tmp_path / "r.resume"
+    save_checkpoint(p, STATE, INFO)
+    state, info = load_checkpoint(p, with_info=True)
+    assert np.array_equal(state["a"], STATE["a"]) and state["n"] == 3
+    assert state["rng"].randn() == np.random.RandomState(7).randn()  # the generator's state
+    assert {k: info[k] for k in INFO} == INFO and read_checkpoint_info(p)["generation"] == 4
+    assert checkpoint_problem(p) is None
+    # the key: in the configuration folder named by the environment, readable by its user alone
+    assert key_path() == own_key / "checkpoint.key"
+    assert stat.S_IMODE(os.stat(key_path()).st_mode) == 0o600
+    assert stat.S_IMODE(os.stat(own_key).st_mode) == 0o700
+    assert list((tmp_path / "home").iterdir()) == []  # nothing in the home folder
+
+
+def test_a_checkpoint_another_key_signed_is_refused_in_one_line(tmp_path, monkeypatch):
+    p = tmp_path / "r.resume"
+    save_checkpoint(p, STATE, INFO)
+    monkeypatch.setenv("FOILMAP_CONFIG_DIR", str(tmp_path / "someone-else"))
+    with pytest.raises(CheckpointError) as exc:
+        load_checkpoint(p)
+    assert exc.value.kind == "unsigned" and "not signed by this user's key" in str(exc.value)
+    assert len(str(exc.value).splitlines()) == 1
+    assert "not signed" in checkpoint_problem(p)
+    assert not (tmp_path / "someone-else").exists()  # checking creates no key
+
+
+def test_a_bare_pickle_is_never_unpickled(tmp_path):
+    # a checkpoint of the old format, or one crafted to run code when unpickled
+    marker = tmp_path / "ran"
+
+    class Evil:
+        def __reduce__(self):
+            return (open, (str(marker), "w"))
+
+    p = tmp_path / "r.resume"
+    p.write_bytes(pickle.dumps(Evil()))
+    with pytest.raises(CheckpointError) as exc:
+        load_checkpoint(p)
+    assert exc.value.kind == "unsigned" and "older foilmap" in str(exc.value)
+    assert not marker.exists()
+
+
+def test_a_flipped_byte_or_a_cut_is_caught_before_unpickling(tmp_path):
+    p = tmp_path / "r.resume"
+    save_checkpoint(p, STATE, INFO)
+    good = p.read_bytes()
+    rng = np.random.default_rng(1)
+    for _ in range(40):
+        i = int(rng.integers(0, len(good)))
+        bad = bytearray(good)
+        bad[i] ^= 1 << int(rng.integers(0, 8))
+        p.write_bytes(bytes(bad))
+        with pytest.raises(CheckpointError) as exc:
+            load_checkpoint(p)
+        assert exc.value.kind in ("damaged", "unsigned")
+        p.write_bytes(good[:i])
+        with pytest.raises(CheckpointError) as exc:
+            load_checkpoint(p)
+        assert exc.value.kind in ("damaged", "unsigned"), i
+    p.write_bytes(good)
+    load_checkpoint(p)
+
+
+def test_a_damaged_key_is_named_in_one_line(tmp_path, own_key):
+    from foilmap.errors import InputError
+
+    own_key.mkdir()
+    (own_key / "checkpoint.key").write_text("not hex\n")
+    runlog._KEYS.clear()
+    with pytest.raises(InputError, match="checkpoint key .* is damaged"):
+        save_checkpoint(tmp_path / "r.resume", STATE, INFO)
+
+
+def test_the_digest_of_the_rows_written_is_the_digest_of_the_rows_read(tmp_path):
+    from foilmap.run.single import execute_run
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.runlog import RunLogWriter, read_run
+    from foilmap.store.studyfile import parse_study
+
+    from conftest import small_study
+
+    st = parse_study(small_study("dg", [1], 60))
+    folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
+    execute_run(st, st.runs()[0], folder.path)
+    path = folder.log_path("p.s1")
+    log = read_run(path)
+    digests = [generation_digest(log.evals, log.gen, log.front_index, g)
+               for g in range(log.generations + 1)]
+    assert digests[0] == "" and len(set(digests[1:])) == log.generations  # each its own
+    w = RunLogWriter.reopen(path, log.generations, old=log)
+    with w:
+        assert w.digest() == digests[-1]
+    cut = read_run(path, upto=3)
+    assert cut.generations == 3 and cut.evaluations == int(log.gen["evaluations"][2])
+    assert generation_digest(cut.evals, cut.gen, cut.front_index, 3) == digests[3]
