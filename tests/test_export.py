@@ -56,7 +56,19 @@ def test_export_of_a_section_re_evaluates(tmp_path, section_file):
     assert zone and rest and len(zone) + len(rest) == len(table)
     assert all(float(t["x"]) > 0.99 and t["dq_ds"] == t["thwaites_lambda"] == "" for t in zone)
     lam = np.array([float(t["thwaites_lambda"]) for t in rest])
-    assert np.all(np.isfinite(lam)) and np.max(np.abs(lam)) < 20.0  # (grows without bound in the zone)
+    x = np.array([float(t["x"]) for t in rest])
+    assert np.all(np.isfinite(lam))
+    # |λ| < 5 up to 98 % chord (measured: 4.3 at x 0.979 on the upper surface, under 1 before
+    # 90 %).  Between 98 % and the zone the ideal flow already decelerates into its
+    # trailing-edge stagnation point (a finite edge angle, 10° here), du/ds → −∞, and λ falls
+    # to −9.1 at x 0.990, the last station before the zone (measured): there λ is negative and
+    # grows in size towards the edge on each surface, station by station
+    assert np.max(np.abs(lam[x <= 0.98])) < 5.0
+    for side in ("upper", "lower"):
+        aft = sorted((float(t["x"]), float(t["thwaites_lambda"])) for t in rest
+                     if t["surface"] == side and float(t["x"]) > 0.98)
+        assert len(aft) >= 3 and all(v < 0 for _, v in aft)
+        assert all(b[1] < a[1] for a, b in zip(aft, aft[1:])), aft
 
 
 def test_trailing_edge_thickness_blend(tmp_path, section_file):
