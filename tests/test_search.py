@@ -85,6 +85,54 @@ def test_same_seed_gives_the_same_bits(tmp_path):
     assert log.best() is not None
 
 
+def _steps(monkeypatch):
+    """Count the generations a run steps (the search's step, wrapped)."""
+    import foilmap.design.search as search
+
+    calls = []
+    original = search.step
+
+    def counted(state, problem, options):
+        calls.append(1)
+        return original(state, problem, options)
+
+    monkeypatch.setattr(search, "step", counted)
+    return calls
+
+
+@pytest.mark.parametrize("cut", [1, 7])
+def test_a_stopped_run_resumes_to_the_same_bits_in_process(tmp_path, monkeypatch, cut):
+    # the quick, in-process form of the kill-and-resume tests below: a run asked to stop
+    # after `cut` generations (what SIGINT and SIGTERM do to a worker) commits and exits 143;
+    # run again, it goes on from its checkpoint -- only the remaining generations are
+    # stepped -- and its log is bit for bit the uninterrupted run's
+    ref = one_run(tmp_path, "ref")
+    total = read_run(ref).generations
+    study = parse_study(STUDY)
+    out = tmp_path / "cut"
+    _, study = StudyFolder.prepare(study, out, None)
+    run = study.runs()[0]
+    calls = _steps(monkeypatch)
+    with pytest.raises(SystemExit) as stop:
+        execute_run(study, run, out, should_stop=lambda: len(calls) >= cut)
+    assert stop.value.code == 143
+    log_path = out / "runs" / f"{run.run_id}.h5"
+    part = read_run(log_path)
+    assert part.state_name != "complete" and part.generations == cut
+    assert StudyFolder(out).checkpoint_path(run.run_id).exists()
+    calls.clear()
+    summary = execute_run(study, run, out)
+    assert summary["state"] == "complete"
+    assert len(calls) == total - cut  # resumed from its state, not started again
+    logs_equal(ref, log_path)
+    done = read_run(log_path)
+    assert done.resumes == 1 and done.generations == total
+    assert not StudyFolder(out).checkpoint_path(run.run_id).exists()
+    calls.clear()
+    execute_run(study, run, out)  # a complete run is skipped
+    assert calls == []
+
+
 def test_different_seeds_differ(tmp_path):
     a = one_run(tmp_path, "a")
     b = one_run(tmp_path, "b", text=STUDY.replace("seeds = [3, 4]", "seeds = [5]"))
