@@ -93,20 +93,35 @@ def test_a_killed_driver_resumes(tmp_path):
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
                             start_new_session=True)
     t0 = time.time()
-    while time.time() - t0 < 120:
+    caught = False
+    while time.time() - t0 < 120 and not caught:
+        assert proc.poll() is None, "the driver ended before it could be killed"
         logs = list((out / "runs").glob("*.h5")) if (out / "runs").exists() else []
         try:
-            if any(read_run(p).generations >= 20 for p in logs):
-                break
+            caught = any(read_run(p).generations >= 20 for p in logs)
         except Exception:
             pass
         time.sleep(0.1)
+    assert caught, "no run reached 20 generations in 120 s"
+    assert proc.poll() is None  # killed mid-run, not after the study ended
     os.killpg(proc.pid, signal.SIGKILL)  # the driver and its LocalCluster
     proc.wait(timeout=60)
+    cut = {}
+    for p in (out / "runs").glob("*.h5"):
+        try:
+            cut[p.name] = read_run(p)
+        except Exception:  # a log cut while it was created: resume starts it afresh
+            pass
+    unfinished = [n for n, log in cut.items() if log.state_name != "complete"]
+    assert unfinished, "every run had finished when the driver was killed"
     r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out), "--engine",
                         "dask", "--workers", "2"], capture_output=True, text=True, timeout=300)
     assert r.returncode == 0, r.stderr
     all_equal(tmp_path / "ref", out, st)
+    # the runs cut after 20 generations went on from their checkpoints, not from scratch
+    resumed = [read_run(out / "runs" / n).resumes for n in unfinished
+               if cut[n].generations >= 20]
+    assert resumed and min(resumed) >= 1, resumed
 
 
 def test_a_thousand_tiny_runs_on_the_local_engine(tmp_path):
