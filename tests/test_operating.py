@@ -302,32 +302,6 @@ def test_study_point_conditions(tmp_path):
                                 "station_thickness = [[0.3, 0.15]]"))
 
 
-def test_problem_with_mach_and_cavitation():
-    from conftest import small_study
-
-    from foilmap.design.problem import Problem
-    from foilmap.store.studyfile import parse_study
-
-    text = small_study("c", [1], 200, constraints="cavitation_margin = 0.1\n"
-                       "min_critical_mach = 0.5").replace(
-        "cl = 0.5", "cl = 0.5\nmach = 0.4\nsigma = 1.5", 1)
-    text = text.replace("peak_suction = 1.0", "peak_suction = 1.0\ncritical_mach_deficit = 1.0")
-    st = parse_study(text)
-    run = st.runs()[0]
-    prob = Problem.from_run(st, run)
-    y = np.zeros((1, prob.param.dimension))
-    out = prob.evaluate(y)
-    sec = prob.param.sections(y)
-    pk = -analyse(sec, cl=0.5, proxies=()).evaluation.cp_min[0]
-    names = prob.objective_names
-    assert out.objectives[0, names.index("peak_suction")] == pytest.approx(
-        -float(compressible_cp(-pk, 0.4)), rel=1e-9)
-    assert out.objectives[0, names.index("critical_mach_deficit")] == pytest.approx(
-        1 - float(critical_mach(-pk)), rel=1e-9)
-    g = dict(zip(prob.constraint_names, out.constraints[0]))
-    assert g["cavitation_margin"] == pytest.approx(0.1 - (1.5 - pk), rel=1e-9)
-
-
 def test_symmetric_parametrisation_is_real():
     from foilmap.design.study import Parametrisation
 
