@@ -8,7 +8,7 @@ import pytest
 
 from foilmap import analyse
 from foilmap.section.conformal import map_at
-from foilmap.section.geometry import coordinates, thickness_at
+from foilmap.section.geometry import coordinates, exact_points_at_x, thickness_at
 
 
 def fine_contour(sec, an, n=400_000):
@@ -88,3 +88,23 @@ def test_map_spacing_coordinates(shaped):
     want = an.frame.to_chord(map_at(shaped, np.exp(1j * phi)[None, :]).z)[0]
     np.testing.assert_allclose(zc[1:-1], want, atol=1e-14)
     assert zc[0] == zc[-1] == 1.0
+
+
+def test_the_surface_split_holds_the_exact_edge_points(shaped):
+    # the interpolation key runs −1 (TE, upper) → 0 (LE) → +1 (TE, lower) through the exact
+    # edge points: y = 0 at both ends and at the leading edge, φ = 0, φ_LE and 2π there
+    an = analyse(shaped, alpha=0.0)
+    sp = an.split
+    key, y, phi = sp.key[0], sp.y[0], sp.phi[0]
+    assert sp.monotone[0] and np.all(np.diff(key) > 0)
+    assert (key[0], y[0], phi[0]) == (-1.0, 0.0, 0.0)
+    assert (key[-1], y[-1], phi[-1]) == (1.0, 0.0, 2 * np.pi)
+    le = int(np.flatnonzero(key == 0.0)[0])
+    assert y[le] == 0.0 and phi[le] == an.frame.phi_le[0]
+    # near the leading edge the interpolated ordinates close on the exact ones
+    x = np.array([2e-4, 1e-3])
+    yu, yl = thickness_at(sp, x)
+    zu = exact_points_at_x(shaped, an.frame, sp, -x)
+    zl = exact_points_at_x(shaped, an.frame, sp, x)
+    np.testing.assert_allclose(yu[0], zu[0].imag, atol=2e-3)
+    np.testing.assert_allclose(yl[0], zl[0].imag, atol=2e-3)

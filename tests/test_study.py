@@ -110,3 +110,96 @@ def test_studies_are_shipped():
 def test_shipped_studies_load(path):
     st = parse_study(path.read_text(), str(path))
     assert st.runs()
+
+
+# --- every key of the schema refuses what it does not allow --------------------------------------
+
+def _toml(value) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return '"' + value + '"'
+    if isinstance(value, list):
+        return "[" + ", ".join(_toml(v) for v in value) + "]"
+    return repr(value)
+
+
+def _study_with(table: str, key: str, value) -> str:
+    """BASE's study with one key set (replaced where BASE has it; its table added when BASE
+    has none)."""
+    line = f"{key} = {_toml(value)}"
+    header = {"study": "[study]", "point": "[[point]]", "objectives": "[objectives]"}.get(table)
+    if header is None:
+        return BASE + f"[{table}]\n{line}\n"
+    out, inside, done = [], False, False
+    for ln in BASE.splitlines():
+        if ln.startswith("["):
+            if inside and not done:
+                out.append(line)
+                done = True
+            inside = ln == header
+        elif inside and ln.split(" = ")[0] == key:
+            ln, done = line, True
+        out.append(ln)
+    if inside and not done:
+        out.append(line)
+    return "\n".join(out) + "\n"
+
+
+def _bad_values(key):
+    """Values outside what the key allows: beyond each end, the wrong type, a reversed range."""
+    lo, hi = key.lo, key.hi
+    if key.kind == "int":
+        return [hi + 1, lo - 1, 2.5, "3"]
+    if key.kind == "float":
+        return [hi + abs(hi) + 1, lo - abs(lo) - 1, "x", True]
+    if key.kind == "range":
+        return [[lo - abs(lo) - 1, hi], [lo, hi + abs(hi) + 1], [hi, lo], [lo]]
+    if key.kind in ("pairs", "start"):
+        return [[[hi + abs(hi) + 1, lo]], [[lo, lo - abs(lo) - 1]], [[lo]], []]
+    if key.kind == "ints":
+        return [[lo - 1], [1, 1], [], [1.5]]
+    if key.kind == "floats":
+        return [[hi + abs(hi) + 1], [lo - abs(lo) - 1], [], ["x"]]
+    if key.kind == "choice":
+        return ["nonsense", 1]
+    if key.kind == "bool":
+        return ["yes", 1]
+    if key.kind == "name":
+        return ["two words", "", "x" * 65, 3]
+    if key.kind == "str":
+        return [3, [1]]
+    raise AssertionError(key.kind)
+
+
+CASES = [(table, key, value) for table, keys in SCHEMA.items() for key, spec in keys.items()
+         for value in _bad_values(spec)]
+
+
+@pytest.mark.parametrize("table,key,value", CASES,
+                         ids=[f"{t}.{k}={v!r}" for t, k, v in CASES])
+def test_every_key_refuses_what_it_does_not_allow(table, key, value):
+    # the schema's own limits (design.study.SCHEMA): every check of every key is exercised, so
+    # a check dropped from the validation lets a value through and fails here
+    path = "point[1]." + key if table == "point" else f"{table}.{key}"
+    with pytest.raises(InputError) as err:
+        parse_study(_study_with(table, key, value), "bad.toml")
+    msg = str(err.value)
+    assert f"{path} = " in msg and "is not allowed" in msg, msg
+    assert "\n" not in msg and "bad.toml" in msg
+
+
+def test_every_key_accepts_its_limits():
+    # the ends of every numeric range are allowed (so the refusals above are the bounds')
+    for table, keys in SCHEMA.items():
+        for key, spec in keys.items():
+            if spec.kind not in ("int", "float") or table in ("objectives",):
+                continue
+            for v in (spec.lo, spec.hi):
+                v = int(v) if spec.kind == "int" else float(v)
+                text = _study_with(table, key, v)
+                try:
+                    parse_study(text, "ok.toml")
+                except InputError as exc:  # another key's rule (a cross-check) may object
+                    assert f"{table}.{key} = " not in str(exc) and \
+                        f"point[1].{key} = " not in str(exc), str(exc)
