@@ -338,6 +338,7 @@ def test_compiled_kernel_matches_independent_routes(kind):
                                       np.delete(full[ok], design_only, axis=1))
 
 
+@pytest.mark.slow
 def test_a_search_that_finds_a_needle_nose_says_so(tmp_path):
     # no leading-edge radius floor and peak suction alone at one Cl: the search sharpens the
     # nose, and the run ends with a warning that names min_le_radius (test study, invented)

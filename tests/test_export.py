@@ -85,6 +85,7 @@ def test_trailing_edge_thickness_blend(tmp_path, section_file):
     assert "0.005 chords thick" in (out / "test-section" / "coordinates.dat").read_text()
 
 
+@pytest.mark.slow
 def test_export_front_designs_with_mesh(tmp_path):
     import gmsh  # noqa: F401 - the mesh extra, installed with the test extra
     from test_fronts import run_folder

@@ -140,6 +140,7 @@ def test_round_trip_recovers_coefficients_cl_and_cp(shaped):
     np.testing.assert_allclose(1 - q1**2, 1 - q0**2, atol=5e-3)
 
 
+@pytest.mark.slow
 def test_fit_command_and_a_study_started_from_it(tmp_path):
     coords = tmp_path / "n2412.dat"
     r = subprocess.run([sys.executable, "-m", "foilmap.cli", "naca", "2412", "-n", "201", "-o",

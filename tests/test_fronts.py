@@ -211,6 +211,7 @@ def test_epsilon_sweep_merges_into_one_front_per_seed(tmp_path):
 # --- the commands --------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_fronts_and_pick_commands(tmp_path):
     a, study = run_folder(tmp_path, "a")
     b, _ = run_folder(tmp_path, "b", MO_STUDY.replace("coefficients = 4", "coefficients = 6")

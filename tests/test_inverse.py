@@ -106,6 +106,7 @@ def test_closure_conditions_checked_by_integrals():
 
 # --- round trip, handbook, partial target ----------------------------------------------------
 
+@pytest.mark.slow
 def test_round_trip_gives_the_section_back(tmp_path):
     table = tmp_path / "t.csv"
     r = cli("evaluate", EXAMPLE, "--cl", "0.6", "--table", table, "--table-points", "801")
@@ -163,6 +164,7 @@ def test_naca_0012_from_exact_speeds_rounded_like_the_table():
     assert np.abs(_thickness(sec, x) - _naca4_thickness(x)).max() < 2e-3
 
 
+@pytest.mark.slow
 def test_partial_target_is_met_where_given(tmp_path):
     sec = load_section(EXAMPLE).to_set()
     an = analyse(sec, cl=0.6, proxies=())

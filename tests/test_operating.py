@@ -242,6 +242,7 @@ def test_symmetric_contradictions_refused(tmp_path):
 
 # --- a fitted section's source chord line ---------------------------------------------------------
 
+@pytest.mark.slow
 def test_fitted_naca_2412_lift_from_the_files_chord_line(tmp_path):
     # Cl at the file's 4° against a converged panel solution of the same coordinates
     from panel import panel_solve

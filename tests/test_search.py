@@ -185,7 +185,8 @@ def test_best_design_meets_its_constraints_from_the_section_file(tmp_path):
 
 # --- real processes: kill, terminate, live status ----------------------------------------------
 
-SLOW = STUDY.replace("max_evaluations = 400", "max_evaluations = 15000").replace(
+# long enough to be cut after 40 generations (about 600 in all), short enough for the suite
+SLOW = STUDY.replace("max_evaluations = 400", "max_evaluations = 6000").replace(
     "seeds = [3, 4]", "seeds = [3]")
 
 
@@ -290,6 +291,7 @@ def test_bad_study_input_writes_nothing(tmp_path, args, message):
     assert set(tmp_path.iterdir()) == before  # nothing written, no results/ folder
 
 
+@pytest.mark.slow
 def test_a_budget_set_on_the_study_reaches_the_workers(tmp_path):
     # regression: workers re-read the study text, which keeps its own budget
     from foilmap.run.local import run_study
@@ -322,7 +324,8 @@ max_evaluations = 120
     assert log.best() is not None
 
 
-INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 6000").replace(
+# about 300 generations a run: the tenth interrupt comes after 73
+INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 3000").replace(
     "seeds = [3, 4]", "seeds = [3, 4, 5]")
 
 

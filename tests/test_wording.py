@@ -160,6 +160,7 @@ def test_every_option_has_help():
     assert missing == []
 
 
+@pytest.mark.slow
 def test_demo_ends_with_the_designs_figures(tmp_path):
     r = cli("demo", "--out", tmp_path / "demo", "--workers", "2", timeout=600)
     assert r.returncode == 0, r.stderr
@@ -168,6 +169,7 @@ def test_demo_ends_with_the_designs_figures(tmp_path):
         assert word in line, line
 
 
+@pytest.mark.slow
 def test_export_all_writes_the_merged_front(tmp_path):
     text = small_study("mo", [1, 2], 240, objectives="peak_suction = 1.0\nseverity = 1.0",
                        extra="[fronts]\nreference_point = [3.0, 3.0]\n")
