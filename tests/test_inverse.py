@@ -84,6 +84,7 @@ def test_lighthill_form_of_a_section_reproduces_its_speed_and_shape():
     assert d.max() < 2e-6
 
 
+@pytest.mark.slow
 def test_closure_conditions_checked_by_integrals():
     sec = load_section(EXAMPLE).to_set()
     an = analyse(sec, cl=0.6, proxies=())
