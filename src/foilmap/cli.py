@@ -280,7 +280,7 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None,
     print(f"study {study.name}: {plural(len(summaries) - len(failed), 'run')} finished now, "
           f"{len(failed)} failed; logs in {out / 'runs'}")
     for s in failed:
-        print(f"  run {s['run']} failed: {s.get('error', 'unknown error')}")
+        print(f"  run {s['run']} {s.get('state', 'failed')}: {s.get('error', 'unknown error')}")
     from foilmap.report.study import is_multi_objective, sharp_nose_warnings
 
     for line in sharp_nose_warnings(out):

@@ -247,6 +247,7 @@ def _study_section(folder: StudyFolder) -> str:
         why = f": {r['error']}" if r.get("error") else ""
         warnings.append(f"run {r['run']} is {r['state']}{why}"
                         + ("; foilmap resume continues it" if r["state"] != "failed" else ""))
+    warnings += [f"run {r['run']}: {r['damage']}" for r in st["runs"] if r.get("damage")]
     try:
         conv = runs_figure(folder.path)
         title = ("Hypervolume and fronts" if is_multi_objective(study)

@@ -13,7 +13,7 @@ from foilmap.errors import InputError
 from foilmap.report.text import plural
 from foilmap.store.folder import StudyFolder, is_multi_objective
 
-__all__ = ["format_status", "sharp_nose_warnings", "runs_figure", "plot_runs",
+__all__ = ["format_status", "damage_lines", "sharp_nose_warnings", "runs_figure", "plot_runs",
            "LE_RADIUS_FLOOR", "is_multi_objective"]
 
 
@@ -35,7 +35,14 @@ def format_status(st: dict) -> str:
         el = "-" if r["elapsed_s"] is None else f"{r['elapsed_s']:.1f}"
         lines.append(f"{r['run']:<28} {r['state']:<11} {r['generations']:>6} "
                      f"{r['evaluations']:>8} {best:>14} {el:>8}")
+    lines += damage_lines(st)
     return "\n".join(lines)
+
+
+def damage_lines(st: dict) -> list[str]:
+    """Status lines naming damaged run files and the repairs a resume made (``damage``)."""
+    found = [f"damage: run {r['run']}: {r['damage']}" for r in st["runs"] if r.get("damage")]
+    return [""] + found if found else []
 
 
 #: a leading-edge radius below about 0.2 % of the chord is a needle nose that no real section

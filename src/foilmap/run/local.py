@@ -17,12 +17,13 @@ import sys
 import threading
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from pathlib import Path
 
 from foilmap.design.results import RunState
 from foilmap.design.study import RunSpec, Study
 from foilmap.errors import InputError
-from foilmap.run.single import init_worker, worker
+from foilmap.run.single import disk_problem, init_worker, worker
 from foilmap.store.folder import INDEXED, StudyFolder
 from foilmap.store.lock import FOLDER_LOCK, Lock
 
@@ -102,6 +103,13 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     lock.acquire(wait=wait, on_wait=on_wait)
     try:
         return _run_locked(study, out, workers, budget, progress, engine, scheduler)
+    except OSError as exc:
+        disk = disk_problem(exc)
+        if disk is None:
+            raise
+        where = f" ({exc.filename})" if getattr(exc, "filename", None) else ""
+        raise InputError(f"study folder {str(out)!r}: {disk}{where}; free space or make it "
+                         "writable, then foilmap resume") from None
     finally:
         lock.release()
 
@@ -204,6 +212,10 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
                 r = futures.pop(fut)
                 try:
                     s = backend.result(fut)
+                except BrokenProcessPool:  # a worker was killed: the pool stops them all
+                    s = {"run": r.run_id, "state": RunState.INTERRUPTED.value,
+                         "error": "a worker process of the study was killed; foilmap resume "
+                                  "continues the run from its last commit"}
                 except Exception as exc:  # the worker process itself died, too often
                     s = {"run": r.run_id, "state": RunState.FAILED.value,
                          "error": f"{type(exc).__name__}: {exc}"}

@@ -34,7 +34,7 @@ from foilmap.store.runlog import (
     save_checkpoint,
 )
 
-__all__ = ["execute_run", "recover", "worker", "init_worker", "COMMIT_INTERVAL",
+__all__ = ["execute_run", "recover", "worker", "disk_problem", "init_worker", "COMMIT_INTERVAL",
            "RUN_ATTEMPTS", "RUN_LOCK_WAIT"]
 
 _QUEUE = None  # progress queue of a worker process
@@ -308,6 +308,22 @@ def _dask_task_gone():
     return gone
 
 
+def disk_problem(exc: BaseException) -> str | None:
+    """``"no space left on device"`` (or read-only, over quota) when ``exc`` says the disk
+    refused a write, else None (HDF5's errors carry the reason in their text only)."""
+    import errno
+
+    reasons = {errno.ENOSPC: "no space left on device", errno.EDQUOT: "disk quota exceeded",
+               errno.EROFS: "read-only file system"}
+    if isinstance(exc, OSError) and exc.errno in reasons:
+        return reasons[exc.errno]
+    text = str(exc).lower()
+    for reason in reasons.values():
+        if reason in text:
+            return reason
+    return None
+
+
 def worker(study: Study, run_id: str, out: str) -> dict:
     """Run one run where the task lands (a pool process or a Dask worker); returns a summary.
 
@@ -343,6 +359,10 @@ def worker(study: Study, run_id: str, out: str) -> dict:
                 break
             except Exception as exc:  # a failing run is recorded, the study goes on
                 error = f"{type(exc).__name__}: {exc}"
+                disk = disk_problem(exc)
+                if disk:  # a full or read-only disk: retrying would only fail again
+                    error = f"{disk}; free space or make the folder writable, then foilmap resume"
+                    break
     finally:
         _STOP["in_run"] = False
     if _STOP["requested"] and _QUEUE is not None:

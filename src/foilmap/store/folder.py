@@ -210,6 +210,9 @@ class StudyFolder:
                     state = self.merged_state(row["state"], s["state"])
                     row.update({k: v for k, v in s.items() if k in INDEXED and v is not None})
                     row["state"] = state.value
+            damage = self.damage(run.run_id, row, entry)
+            if damage:
+                row["damage"] = damage
             rows.append(row)
         counts: dict[str, int] = {}
         for r in rows:
@@ -220,6 +223,26 @@ class StudyFolder:
                 "counts": counts, "evaluations": total_e,
                 "evaluations_per_s": (total_e / total_t) if total_t > 0 else None,
                 "checked": time.strftime("%Y-%m-%dT%H:%M:%S%z")}
+
+    def damage(self, run_id: str, row: dict, entry: dict) -> str | None:
+        """One line naming what is damaged in an unfinished run's files (an unreadable log, a
+        checkpoint that is damaged or not signed by this user's key), or the repair the last
+        resume made (the index's ``note``); None when nothing is amiss."""
+        from foilmap.store.runlog import checkpoint_problem
+
+        if row["state"] == RunState.COMPLETE.value:
+            return None
+        found = []
+        if row["state"] == RunState.UNREADABLE.value:
+            found.append(f"log {self.log_path(run_id).name} is damaged: "
+                         f"{str(row.get('error', '')).splitlines()[0] if row.get('error') else ''}")
+        problem = checkpoint_problem(self.checkpoint_path(run_id))
+        if problem:
+            found.append(problem)
+        if found:
+            return "; ".join(found) + " (foilmap resume keeps what agrees or restarts this run)"
+        note = entry.get("note")
+        return note.removeprefix(f"run {run_id}: ") if note else None
 
     @staticmethod
     def merged_state(indexed: str, logged: str) -> RunState:

@@ -227,9 +227,9 @@ class RunLogWriter:
         self.f.flush()
 
     def close(self) -> None:
-        if self.f:
-            self.f.close()
-            self.f = None
+        f, self.f = self.f, None
+        if f:
+            f.close()
 
     def __enter__(self):
         return self
@@ -324,10 +324,45 @@ def read_run(path: str | Path, upto: int | None = None) -> RunLog:
     """Read a run log, also while another process is writing it (SWMR).
 
     ``upto`` reads only the first ``upto`` generations (and their evaluations and archives):
-    what a resume keeps of a log whose later rows are damaged."""
+    what a resume keeps of a log whose later rows are damaged.  A damaged file raises
+    ``OSError``, ``KeyError`` or ``ValueError`` (HDF5's other errors become ``OSError``)."""
+    try:
+        return _read_run(Path(path), upto)
+    except (OSError, KeyError, ValueError):
+        raise
+    except Exception as exc:  # noqa: BLE001 - h5py reports some damage as RuntimeError
+        raise OSError(f"{type(exc).__name__}: {exc}") from exc
+
+
+def _check_length(path: Path) -> None:
+    """Raise ``OSError`` when the file is shorter than the end its HDF5 superblock records (a
+    truncated log: HDF5's SWMR reader does not check this itself, and then retries its reads
+    of the missing metadata for minutes).  A live writer's flush can leave the file short for a
+    moment, so the check is repeated for a fraction of a second before it counts."""
+    for attempt in range(6):
+        with open(path, "rb") as fh:
+            head = fh.read(48)
+            size = os.fstat(fh.fileno()).st_size
+        if len(head) < 8 or head[:8] != b"\x89HDF\r\n\x1a\n":
+            raise OSError(f"log {path.name} is not an HDF5 file ({size} bytes)")
+        if len(head) < 44:
+            raise OSError(f"log {path.name} is truncated ({size} bytes)")
+        if head[8] not in (2, 3):
+            return  # an older superblock layout: HDF5 checks it itself
+        width = head[9]
+        if width != 8:
+            return
+        (end,) = struct.unpack("<Q", head[12 + 2 * width:12 + 3 * width])
+        if size >= end:
+            return
+        time.sleep(0.05 * (attempt + 1))
+    raise OSError(f"log {path.name} is truncated ({size} of {end} bytes)")
+
+
+def _read_run(path: Path, upto: int | None) -> RunLog:
     import h5py
 
-    path = Path(path)
+    _check_length(path)
     with h5py.File(path, "r", libver="latest", swmr=True) as f:
         for ds in ("evals/x", "gen/evaluations"):
             f[ds].refresh()
@@ -346,8 +381,25 @@ def read_run(path: str | Path, upto: int | None = None) -> RunLog:
         front = None
         if "front" in f:
             f["front/index"].refresh()
-            nf = int(gen["front_offset"][-1] + gen["front_size"][-1]) if ng else 0
-            front = f["front/index"][:nf]
+            front = f["front/index"][()]
+        # a write cut short (a full disk) can leave generation rows whose evaluations or
+        # archive never reached the file, or rows resized but never written (they read as
+        # zeros): such a log is read up to its last whole generation
+        counts = gen["evaluations"][:ng]
+        grows = np.flatnonzero(np.diff(np.concatenate([[0], counts])) <= 0)
+        if grows.size:
+            ng = int(grows[0])
+        have_e = min(a.shape[0] for a in evals.values())
+        have_f = front.shape[0] if front is not None else None
+        while ng and (int(gen["evaluations"][ng - 1]) > have_e or (have_f is not None and int(
+                gen["front_offset"][ng - 1] + gen["front_size"][ng - 1]) > have_f)):
+            ng -= 1
+        if ng < gen["evaluations"].shape[0]:
+            gen = {k: v[:ng] for k, v in gen.items()}
+            ne = int(gen["evaluations"][-1]) if ng else 0
+            evals = {k: v[:ne] for k, v in evals.items()}
+        if front is not None:
+            front = front[:int(gen["front_offset"][-1] + gen["front_size"][-1]) if ng else 0]
         meta = f["meta"]
         for k in meta:
             meta[k].refresh()
