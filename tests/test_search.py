@@ -133,6 +133,35 @@ def test_a_stopped_run_resumes_to_the_same_bits_in_process(tmp_path, monkeypatch
     assert calls == []
 
 
+def test_a_log_ahead_of_its_checkpoint_resumes_from_the_checkpoint(tmp_path, monkeypatch):
+    # what SIGKILL leaves between a commit's rows and its checkpoint, made in-process: the log
+    # holds 7 generations, the checkpoint is the one of generation 3.  The resume cuts the log
+    # back to 3 and steps the rest: the uninterrupted run's bits, no generation twice
+    import shutil
+
+    ref = one_run(tmp_path, "ref")
+    total = read_run(ref).generations
+    study = parse_study(STUDY)
+    out = tmp_path / "cut"
+    _, study = StudyFolder.prepare(study, out, None)
+    run = study.runs()[0]
+    ckpt = StudyFolder(out).checkpoint_path(run.run_id)
+    log_path = out / "runs" / f"{run.run_id}.h5"
+    calls = _steps(monkeypatch)
+    with pytest.raises(SystemExit):
+        execute_run(study, run, out, should_stop=lambda: len(calls) >= 3)
+    shutil.copy2(ckpt, tmp_path / "gen3.resume")
+    with pytest.raises(SystemExit):
+        execute_run(study, run, out, should_stop=lambda: len(calls) >= 7)
+    assert read_run(log_path).generations == 7
+    shutil.copy2(tmp_path / "gen3.resume", ckpt)  # the checkpoint four generations behind
+    calls.clear()
+    execute_run(study, run, out)
+    assert len(calls) == total - 3
+    logs_equal(ref, log_path)
+    assert read_run(log_path).resumes == 2
+
+
 def test_different_seeds_differ(tmp_path):
     a = one_run(tmp_path, "a")
     b = one_run(tmp_path, "b", text=STUDY.replace("seeds = [3, 4]", "seeds = [5]"))
