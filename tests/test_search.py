@@ -180,7 +180,9 @@ def test_log_schema_is_documented_and_complete(tmp_path):
         f.visititems(lambda name, obj: found.add(name) if isinstance(obj, h5py.Dataset) else None)
         attrs = set(f.attrs)
         assert f.attrs["schema_version"] == "1.1"
-        assert f["evals/x"].compression == "gzip"
+        assert f["evals/x"].compression == "gzip" and f["evals/x"].shuffle
+        assert f["evals/x"].dtype == np.float64  # search vectors to the last bit
+        assert f["meta/state"].dtype == np.int8  # the one-byte state (docs/run-log.md)
         assert f["evals/x"].chunks[0] == f.attrs["chunk_rows"]
         study_text = f["study_text"].asstr()[()]
     assert found == documented_ds, (found ^ documented_ds)

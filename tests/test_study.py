@@ -48,6 +48,67 @@ search = { max_evaluations = 500 }
     assert runs[2].point.cls == (0.8, 0.6, 1.0)
     assert st.with_budget(77).runs()[-1].search["max_evaluations"] == 77
     assert st.text == text
+    # a budget changes the budget only: the text, file, folder, engine and fronts stay
+    b = st.with_budget(77)
+    assert (b.text, b.source, b.base_dir, b.engine, b.reference_point) == (
+        st.text, st.source, st.base_dir, st.engine, st.reference_point)
+
+
+def test_engine_and_fronts_tables_reach_the_study():
+    st = parse_study(BASE.replace("peak_suction = 1.0", "peak_suction = 1.0\nseverity = 1.0")
+                     + '[engine]\nkind = "dask"\nworkers = 3\n'
+                     "[fronts]\nreference_point = [2.0, 3.0]\n")
+    assert st.engine == {"kind": "dask", "scheduler": "", "workers": 3}
+    assert st.reference_point == (2.0, 3.0)
+
+
+def test_a_symmetric_study_may_bound_camber_from_zero():
+    # zero camber inside [0, 0.05] (a symmetric section has none): allowed
+    st = parse_study(BASE + "[shape]\nsymmetric = true\n[constraints]\ncamber = [0.0, 0.05]\n")
+    assert st.constraints["camber"] == [0.0, 0.05]
+
+
+def _param(**shape):
+    from foilmap.design.study import Parametrisation
+
+    base = {"coefficients": 3, "start": [[-0.09, 0.03], [0.01, -0.02]], "step": 0.02,
+            "limit": 0.15, "te_angle_deg": [6.0, 14.0]}
+    return Parametrisation.from_shape({**base, **shape})
+
+
+def test_parametrisation_bounds_start_and_trailing_edge_angle():
+    import numpy as np
+
+    # docs/method.md: A_n = start_n + (step/n)(y + i y'), |ΔA_n| ≤ limit/n at the bounds
+    par = _param()
+    assert not par.symmetric and par.dimension == 7
+    lo, hi = par.bounds()
+    assert hi[:6] == [0.15 / 0.02] * 6 and lo[:6] == [-0.15 / 0.02] * 6
+    assert (lo[6], hi[6]) == (0.0, 1.0)
+    sec = par.sections(np.array([hi]))
+    n = np.arange(1, 4)
+    start = np.array([-0.09 + 0.03j, 0.01 - 0.02j, 0.0])
+    np.testing.assert_allclose(sec.coefficients[0] - start, (0.15 / n) * (1 + 1j), atol=1e-15)
+    assert np.degrees(sec.te_angle[0]) == pytest.approx(14.0)
+    # the start: the start pairs, τ mid-range; or the start section's own τ, clipped to the range
+    x0 = par.x0()
+    assert list(x0[:6]) == [0.0] * 6 and x0[6] == 0.5
+    np.testing.assert_array_equal(par.sections(x0).coefficients[0], start)
+    assert _param(start_te_angle_deg=8.0).x0()[6] == pytest.approx(0.25)
+    assert _param(start_te_angle_deg=30.0).x0()[6] == 1.0
+    assert _param(start_te_angle_deg=2.0).x0()[6] == 0.0
+    # a fixed τ has no coordinate and every section gets it
+    fixed = _param(te_angle_deg=[9.0, 9.0])
+    assert fixed.dimension == 6
+    assert np.degrees(fixed.sections(np.zeros((2, 6))).te_angle) == pytest.approx([9.0, 9.0])
+    # coefficients beyond N are dropped; start_pairs (a start file's) win over start
+    par = _param(coefficients=1, start_pairs=[[-0.1, 0.02], [0.5, 0.5]])
+    np.testing.assert_array_equal(par.start, [-0.1 + 0.02j])
+    # symmetric: N real components, no imaginary part even from a complex start
+    sym = _param(symmetric=True)
+    assert sym.symmetric and sym.dimension == 4
+    assert np.all(sym.sections(np.ones((1, 4))).coefficients.imag == 0)
+    assert not _param().symmetric
 
 
 BAD = [
@@ -80,6 +141,20 @@ BAD = [
     (BASE + "[[variant]]\nname = 'v'\nshape = { n = 1 }\n", "unknown key 'variant[1].shape.n'"),
     (BASE + "[[variant]]\nname = 'v'\nshape = { coefficients = 0 }\n",
      "variant[1].shape.coefficients = 0 is not allowed"),
+    (BASE + "[[point]]\nname = \"a\"\ncl = 0.3\n", "point names must be distinct"),
+    (BASE + "[[variant]]\nname = 'v'\n[[variant]]\nname = 'v'\n",
+     "variant names must be distinct"),
+    ("variant = 3\n" + BASE, "'variant' must be a list of [[variant]] tables"),
+    (BASE + "[[variant]]\nshape = { coefficients = 4 }\n", "variant[1] needs a 'name'"),
+    (BASE + "[shape]\nstart = ' '\n", "shape.start = ' ' is not allowed (pairs, or a file path)"),
+    (BASE.replace("peak_suction = 1.0", "target_cp_rms = 1.0"),
+     "objective target_cp_rms needs 'target_cp' at point 'a'"),
+    (BASE.replace("cl = 0.5", "cl = 0.5\nspeed = 0.0\ndepth = 1.0\nwater_temperature = 20.0"),
+     "point[1].speed = 0.0 is not allowed (a speed above 0)"),
+    (BASE + "[constraints]\ncavitation_margin = 0.1\n",
+     "constraints.cavitation_margin needs a cavitation number at point"),
+    (BASE + "[shape]\nsymmetric = true\n[constraints]\ncamber = [0.01, 0.05]\n",
+     "constraints.camber = [0.01, 0.05] excludes zero"),
 ]
 
 
