@@ -22,6 +22,12 @@ from foilmap.store.studyfile import parse_study
 
 pytestmark = pytest.mark.slow
 
+
+@pytest.fixture(autouse=True)
+def own_key(tmp_path, monkeypatch):
+    """The checkpoint key in a temporary folder, never the real home."""
+    monkeypatch.setenv("FOILMAP_CONFIG_DIR", str(tmp_path / "config"))
+
 def study(n: int, evals: int):
     return parse_study(small_study("cluster", range(1, n + 1), evals))
 
@@ -157,3 +163,75 @@ def test_a_run_that_keeps_failing_is_recorded_and_the_rest_finish(tmp_path):
         index = {e["run"]: e for e in json.loads((out / "index.json").read_text())["runs"]}
         assert index["p.s2"]["state"] == "failed" and "error" in index["p.s2"]
         assert all(index[f"p.s{i}"]["state"] == "complete" for i in (1, 3, 4))
+
+
+def test_a_killed_driver_alone_frees_its_runs_and_resumes_at_once(tmp_path):
+    # SIGKILL to the driver alone: the LocalCluster's worker processes are re-parented, their
+    # tasks commit and stop, the runs' locks are free within a second or two; a resume started
+    # at once finishes with the same bits
+    from faultkit import generations
+
+    from foilmap.store.lock import Lock
+
+    st = study(2, 3000)
+    run_study(st, tmp_path / "ref", workers=2)
+    sf = tmp_path / "s.toml"
+    sf.write_text(st.text)
+    out = tmp_path / "cut"
+    proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
+                             str(out), "--engine", "dask", "--workers", "2"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+    t0 = time.time()
+    while time.time() - t0 < 120 and generations(out / "runs" / "p.s1.h5") < 20:
+        assert proc.poll() is None
+        time.sleep(0.05)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait(timeout=60)
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out), "--engine",
+                        "dask", "--workers", "2"], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    assert "restarts from its seed" not in r.stderr
+    all_equal(tmp_path / "ref", out, st)
+    for run in st.runs():
+        with Lock(out / "runs" / f"{run.run_id}.lock", "t").acquire(wait=0):
+            pass
+
+
+def test_a_task_whose_client_is_gone_commits_and_stops(tmp_path):
+    import logging
+
+    from distributed import Client, LocalCluster
+
+    from foilmap.run.single import recover, worker
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.lock import Lock
+
+    st = study(1, 10**6)  # far longer than the test
+    folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
+    cluster = LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
+                           dashboard_address=None, silence_logs=logging.ERROR)
+    try:
+        client = Client(cluster.scheduler_address)
+        client.submit(worker, st, "p.s1", str(folder.path), pure=False)
+        log = folder.log_path("p.s1")
+        t0 = time.time()
+        while True:
+            assert time.time() - t0 < 300, "the run made no progress"
+            try:
+                if read_run(log).generations >= 20:
+                    break
+            except Exception:
+                pass
+            time.sleep(0.1)
+        client.close()  # the client goes; the scheduler cancels its task
+        lock = Lock(log.with_suffix(".lock"), "t")
+        t1 = time.time()
+        while not lock.try_acquire():
+            assert time.time() - t1 < 10, "the task went on writing without its client"
+            time.sleep(0.05)
+        lock.release()
+        state, g, _, note = recover(log, folder.checkpoint_path("p.s1"), "p.s1")
+        assert state is not None and note is None and g >= 20  # committed, consistent
+    finally:
+        cluster.close()

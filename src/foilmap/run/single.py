@@ -282,8 +282,11 @@ RUN_ATTEMPTS = 3
 
 
 def _dask_task_gone():
-    """In a Dask task: a function answering True once the task is no longer wanted (its client
-    is gone or cancelled it; asked at most once a second), else None outside Dask."""
+    """In a Dask task: a function answering True once the task is no longer wanted (asked at
+    most once a second), else None outside Dask.  No longer wanted: the scheduler cancelled or
+    released it (its client closed, or lost: the scheduler drops a vanished client's tasks), or
+    the worker process was re-parented (its nanny gone; with a LocalCluster that is the
+    driver itself, killed outright)."""
     try:
         from distributed import get_worker
         from distributed.worker import thread_state
@@ -293,12 +296,15 @@ def _dask_task_gone():
     except (ImportError, ValueError, AttributeError):
         return None
     last = [time.monotonic()]
+    parent = os.getppid()
 
     def gone() -> bool:
         now = time.monotonic()
         if now - last[0] < 1.0:
             return False
         last[0] = now
+        if os.getppid() != parent:
+            return True
         try:
             ts = w.state.tasks.get(key)
         except Exception:  # noqa: BLE001 - a worker shutting down
