@@ -47,13 +47,32 @@ V_CROSSED = 5  # Status.NEGATIVE_THICKNESS: the surfaces cross
 V_ABOVE_MAX_LIFT = 6
 V_NON_FINITE = 7
 V_NOT_STARLIKE = 8
+V_THIN = 9  # Status.BELOW_FLOOR: the local thickness falls below the floor
+V_UNCERTIFIED = 10  # Status.UNCERTIFIED: a certificate ran out of budget or stack
+
+#: the local-thickness floor (docs/study-file.md, ``min_local_thickness``): full value t₀ on
+#: FLOOR_NOSE ≤ x/c ≤ FLOOR_TAPER, rising linearly from 0 at the leading edge to t₀ at
+#: FLOOR_NOSE, falling as ((1 − x)/(1 − FLOOR_TAPER))² into the trailing-edge wedge.  It holds
+#: exactly at FLOOR_STATIONS stations on FLOOR_START ≤ x/c ≤ FLOOR_END (whose least clearance
+#: is the figure ``floor_margin``) and at FLOOR_TAIL more stations that halve the distance to
+#: the trailing edge each, and between all of them it is certified to hold at least
+#: FLOOR_BETWEEN times (with no floor: the thickness certified positive there)
+FLOOR_START = 0.005
+FLOOR_NOSE = 0.05
+FLOOR_TAPER = 0.8
+FLOOR_END = 0.98
+FLOOR_STATIONS = 41
+FLOOR_TAIL = 12
+FLOOR_BETWEEN = 0.5
+#: most interval splits the floor certificate may spend before it gives up
+_FLOOR_BUDGET = 4000
 
 #: columns of the figure array returned by :func:`search_batch`
 FIGURES = ("cl", "alpha", "alpha_zero_lift", "lift_slope", "cl_max_ideal", "cm_quarter_chord",
            "cp_min", "cp_min_x", "thickness", "thickness_x", "camber", "camber_x", "le_radius",
            "te_angle", "area", "severity", "thwaites_sep_x_upper", "thwaites_sep_x_lower",
            "thwaites_min_lambda", "stratford_margin", "stratford_sep_x_upper",
-           "stratford_sep_x_lower", "cp_min_upper")
+           "stratford_sep_x_lower", "cp_min_upper", "floor_margin")
 _NF = len(FIGURES)
 
 
@@ -406,12 +425,13 @@ def _arc_speed_bound(zmin, kz, q2, q, phi, delta, u, alpha_c):
 
 @njit(cache=True)
 def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c, tol,
-          sc, sd, ste, floor):
+          sc, sd, ste, floor, budget):
     """Certified global maximum of q(φ) = |w|/|z'|: returns (q_max, φ_max, certified).
 
     Every sampled local maximum within 10 % of the largest sample is refined to round-off; then
     every arc of the circle is shown by rigorous bounds to hold no speed above q_max (1 + tol),
-    splitting arcs until it does.  ``certified`` is False only if the budget ran out.
+    splitting arcs until it does.  ``certified`` is False only if the budget (arc evaluations)
+    or the stack ran out.
 
     ``floor`` > 0 asks only for the maximum over several flows: arcs are cleared against
     max(q_max, floor) (1 + tol), so that q_max is this flow's maximum where it exceeds the floor
@@ -471,7 +491,7 @@ def _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs, alpha_c
         te = ste[top]
         if te and _te_speed_bound(2.0 * d, k, u, ca, l1, l2, gdte, mm, omh1) <= limit:
             continue
-        if spent >= _BUDGET or top + 2 >= sc.shape[0] or d < 1e-15:
+        if spent >= budget or top + 2 >= sc.shape[0] or d < 1e-15:
             certified = False
             continue
         hd = 0.5 * d
@@ -569,8 +589,9 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
     star-shaped about 0, hence simple and one-to-one (Darboux), meeting the positive real axis
     only at z₁ = 1 and the negative one once, at x_π.  2. z₁ = −1 inside and the cut [−1, 1)
     outside the flow: x_π < −1.  3. |g + 1| > δ₂ on every arc (|g_m + 1| − Gδ > δ₂).
-    4. The Kármán–Trefftz stage one-to-one on the flow (:func:`_stage2_simple`): no two
-    points of the contour with equal |t| and args 2π/k apart; otherwise it crosses itself.
+    A check rejects with a witness (a point where it fails) or gives up (V_UNCERTIFIED) when
+    its budget or stack runs out.  The Kármán–Trefftz stage is checked afterwards
+    (:func:`_certify`).
     """
     l1, l2 = consts[0], consts[1]
     p = phis.shape[0]
@@ -599,7 +620,7 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
                 continue
             spent += 1
             if spent > _BUDGET or top + 2 >= sc.shape[0]:
-                return V_NOT_STARLIKE, 0.0
+                return V_UNCERTIFIED, 0.0  # gave up: no witness either way
             top = _push_halves(sc, sd, top, c, d)
     # 2. the negative real-axis crossing, where arg g passes π (once: star shape)
     jx = -1
@@ -648,11 +669,8 @@ def _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, 
             continue
         spent += 1
         if spent > _BUDGET or top + 2 >= sc.shape[0]:
-            return V_SINGULAR, dmin
+            return V_UNCERTIFIED, dmin  # gave up: no witness either way
         top = _push_halves(sc, sd, top, c, d)
-    # 4. the Kármán–Trefftz stage one-to-one: see _stage2_simple
-    if not _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
-        return V_CROSSED, dmin
     return V_OK, dmin
 
 
@@ -722,9 +740,15 @@ def _te_box(sigma, psa, psb, consts):
 
 
 @njit(cache=True)
-def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
+def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi, free):
     """Certify that the Kármán–Trefftz stage is one-to-one on the flow, i.e. that the contour
-    does not cross itself.
+    does not cross itself.  True when certified; False when it gives up (it never proves a
+    crossing: the witness is :func:`_crossing_witness`).
+
+    ``free`` = (φ₀, φ₁, φ₂, φ₃): arcs inside [φ₀, φ₁] (upper surface) or [φ₂, φ₃] (lower) are
+    known to meet no other point of the contour (the floor certificate showed the surfaces
+    apart at every x there, and each surface is single-valued in x), so they are left out of
+    the pairs; an empty range (φ₀ > φ₁) leaves out nothing.
 
     t^k (principal) takes the same value at two points t₁ ≠ t₂ of the slit plane only where
     |t₁| = |t₂| and arg t₁ − arg t₂ = ±2π/k.  The arcs of the circle are boxed in
@@ -734,7 +758,8 @@ def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
     differ by 2π/k; such boxes are split until none remain (certified) or the budget runs out
     (the section is rejected).  The two arcs that end at the edge, where t → 0 and the args
     tend to β± (exactly π apart), are cleared against each other when f(ψ) = κψ + E(ψ), which
-    is convex with f(0) = 0, satisfies 2 max(f(b), 0) < 2π/k − π, or f(b) < 0 (a cusp).
+    is convex with f(0) = 0, satisfies 2 max(f(b), 0) < 2π/k − π, or f(b) < 0; at a cusp
+    (2π/k = π) also when κb − E(b) > 0 (their args then differ by more than π).
     """
     l1, l2 = consts[0], consts[1]
     p = phis.shape[0]
@@ -761,13 +786,25 @@ def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
         for i in range(n):
             if te[i]:
                 b = 2.0 * hw[i]
-                f = consts[8] * b + _te_excess(b, consts)
-                if not (f < 0.0 or 2.0 * max(f, 0.0) < slack):
+                ex = _te_excess(b, consts)
+                f = consts[8] * b + ex
+                # args of the two edge arcs differ by π + κ(ψ₁ + ψ₂) ± (E(ψ₁) + E(ψ₂)), and
+                # E(ψ) ≤ (ψ/b) E(b) (convex, E(0) = 0): below 2π/k where f(b) < 0 or
+                # 2 max(f(b), 0) < 2π/k − π; above it at a cusp (2π/k = π) where κb > E(b)
+                if not (f < 0.0 or 2.0 * max(f, 0.0) < slack
+                        or (slack <= 0.0 and consts[8] * b - ex > 0.0)):
                     te_pair_ok = False
             if not mark[i]:
                 continue
             c = cen[i]
             d = hw[i]
+            mark[i] = False
+            if (free[0] <= c - d and c + d <= free[1]) or (free[2] <= c - d and c + d <= free[3]):
+                rlo[i] = _INF  # meets nothing: in no pair, never split
+                rhi[i] = -_INF
+                alo[i] = _INF
+                ahi[i] = -_INF
+                continue
             sigma = 1.0 if c < math.pi else -1.0
             psi_c = c if c < math.pi else _TWO_PI - c
             if te[i]:
@@ -786,7 +823,6 @@ def _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi):
             rhi[i] = r1
             alo[i] = a0_
             ahi[i] = a1_
-            mark[i] = False
         lo_all = _INF
         hi_all = -_INF
         for i in range(n):
@@ -851,7 +887,8 @@ def _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le, sc
     most one extremum there, the leading edge; arcs within 1e-9 rad of it are treated alike,
     so that a leading edge on an arc's end is not chased by splitting).  The arcs at the trailing edge use the tangent's
     expansion θ → π/2 + arg(1 − h(1)) + (k − 1)(±π/2 + arg(1 − h(1))) + arg(scale).
-    Returns V_OK or V_FOLDED.
+    Returns V_OK, V_FOLDED (an arc of 1e-13 rad still turns past vertical) or V_UNCERTIFIED
+    (budget or stack spent).
     """
     l1, l2, gdte, mm, omh1, arg1h = (consts[0], consts[1], consts[3], consts[4], consts[5],
                                      consts[6])
@@ -907,9 +944,11 @@ def _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le, sc
                         continue
                 elif _arg_dist(theta, math.pi if upper else 0.0) + v < _HALF_PI:
                     continue
+        if d < 1e-13:
+            return V_FOLDED  # the tangent turns past vertical on an arc of 1e-13 rad
         spent += 1
-        if spent > _BUDGET or top + 2 >= sc.shape[0] or d < 1e-13:
-            return V_FOLDED
+        if spent > _BUDGET or top + 2 >= sc.shape[0]:
+            return V_UNCERTIFIED
         for i in range(2):
             sc[top] = c - 0.5 * d if i == 0 else c + 0.5 * d
             sd[top] = 0.5 * d
@@ -980,6 +1019,333 @@ def _exact_point(a, a0, k, z_le, scale, keys, yk, pk, key, iterations):
     zc = (z - z_le) * scale
     dzc = complex(math.cos(phi), math.sin(phi)) * dz * scale
     return zc, dzc.real / -dzc.imag, phi
+
+
+# --- the local-thickness floor and the certified contour ------------------------------------------
+
+
+@njit(cache=True)
+def floor_at(x, t0):
+    """The local-thickness floor at chord station x (see FLOOR_START …): t₀ min(1, x/x_n,
+    ((1 − x)/(1 − x_t))²)."""
+    w = (1.0 - x) / (1.0 - FLOOR_TAPER)
+    return t0 * min(1.0, x / FLOOR_NOSE, w * w)
+
+
+@njit(cache=True)
+def floor_stations():
+    """The floor's exact stations: FLOOR_STATIONS on [FLOOR_START, FLOOR_END], the floor's
+    corners among them (equal steps on the nose ramp, the full floor and the taper, as many per
+    piece as its length asks), then FLOOR_TAIL toward the trailing edge, 1 − x halving at
+    each."""
+    pieces = np.array([FLOOR_START, FLOOR_NOSE, FLOOR_TAPER, FLOOR_END])
+    total = FLOOR_END - FLOOR_START
+    out = np.empty(FLOOR_STATIONS + FLOOR_TAIL)
+    n = 0
+    for i in range(3):
+        m = max(2, int(round((FLOOR_STATIONS - 1) * (pieces[i + 1] - pieces[i]) / total)))
+        if i == 2:
+            m = FLOOR_STATIONS - 1 - n
+        for j in range(m):
+            out[n] = pieces[i] + (pieces[i + 1] - pieces[i]) * j / m
+            n += 1
+    out[n] = FLOOR_END
+    for j in range(FLOOR_TAIL):
+        out[n + 1 + j] = 1.0 - (1.0 - FLOOR_END) * 0.5 ** (j + 1)
+    return out
+
+
+@njit(cache=True)
+def _point_at_x(a, a0, k, z_le, scale, phi, lo, hi, xt):
+    """The exact contour point at chord station xt on the surface arc [lo, hi] of the circle,
+    where the chord-frame x is monotone: Newton's method from φ, kept inside a bracket that it
+    narrows (a bisection step where Newton would leave it).  Returns (x + iy, φ, converged):
+    converged when the step fell below 1e-15 rad or x matches xt to 1e-14."""
+    phi = min(max(phi, lo), hi)
+    flo = ((map_point(a, a0, k, lo)[3] - z_le) * scale).real - xt
+    for _ in range(60):
+        g, e, h, z, dz, q2 = map_point(a, a0, k, phi)
+        zc = (z - z_le) * scale
+        f = zc.real - xt
+        if abs(f) <= 1e-14:
+            return zc, phi, True
+        if (f > 0.0) == (flo > 0.0):
+            lo = phi
+            flo = f
+        else:
+            hi = phi
+        zeta = complex(math.cos(phi), math.sin(phi))
+        dxdphi = (1j * zeta * dz * scale).real
+        nxt = phi - f / dxdphi
+        if not (lo < nxt < hi) or not math.isfinite(nxt):
+            nxt = 0.5 * (lo + hi)
+        if abs(nxt - phi) <= 1e-15:
+            return zc, phi, True
+        phi = nxt
+    zc = (map_point(a, a0, k, phi)[3] - z_le) * scale
+    return zc, phi, abs(zc.real - xt) <= 1e-12
+
+
+@njit(cache=True)
+def _graph_curvature(a, a0, k, consts, z_le, scale, p0, p1):
+    """A bound of |d²y/dx²| of the surface over the circle arc [p0, p1] (single-valued in x):
+    |y''| = |Dθ| / (|DZ| cos³θ), with |Dθ| = |Re(1 + ζz''/z')| ≤ |1 + q2_c| + K δ, |DZ| ≥
+    |scale| min|z'|, and θ within (|1 + q2_c| + K δ) δ of its centre value.  Inf where the arc
+    is too long for the bounds or turns to vertical."""
+    c = 0.5 * (p0 + p1)
+    d = 0.5 * abs(p1 - p0)
+    zc = complex(math.cos(c), math.sin(c))
+    g, e, h, z, dz, q2 = _map_zeta(a, a0, k, zc)
+    ok, zmin, kz, dlog, gd = _split_arc_bounds(a, zc, g, e, h, d, k, consts)
+    if not ok:
+        return _INF
+    kt = abs(1.0 + q2) + kz * d
+    tang = 1j * zc * dz * scale
+    theta = math.atan2(tang.imag, tang.real)
+    dev = min(_arg_dist(theta, 0.0), _arg_dist(theta, math.pi)) + kt * d
+    if dev >= 1.5:  # cos θ not bounded away from 0
+        return _INF
+    cm = math.cos(dev)
+    return kt / (zmin * abs(scale) * cm * cm * cm)
+
+
+@njit(cache=True)
+def _grid_curvature(j, d, dzs, q2s, oks, zmins, kzs, scale_abs, scale_arg):
+    """:func:`_graph_curvature` over grid arc j (half-width d) from the grid's own bounds (no
+    new map evaluation)."""
+    if not oks[j]:
+        return _INF
+    kt = abs(1.0 + q2s[j]) + kzs[j] * d
+    c = (j + 0.5) * 2.0 * d
+    tang = 1j * complex(math.cos(c), math.sin(c)) * dzs[j]
+    theta = math.atan2(tang.imag, tang.real) + scale_arg
+    dev = min(_arg_dist(theta, 0.0), _arg_dist(theta, math.pi)) + kt * d
+    if dev >= 1.5:
+        return _INF
+    cm = math.cos(dev)
+    return kt / (zmins[j] * scale_abs * cm * cm * cm)
+
+
+@njit(cache=True)
+def _span_curvature(p0, p1, cbs, dzs, q2s, oks, zmins, kzs, scale_abs, scale_arg):
+    """The largest grid-arc curvature bound over the grid arcs that cover [p0, p1] (each
+    computed once per section and kept in ``cbs``, NaN until then)."""
+    p = cbs.shape[0]
+    step = _TWO_PI / p
+    lo = min(p0, p1)
+    hi = max(p0, p1)
+    j0 = max(int(lo / step), 0)
+    j1 = min(int(hi / step), p - 1)
+    out = 0.0
+    for j in range(j0, j1 + 1):
+        if math.isnan(cbs[j]):
+            cbs[j] = _grid_curvature(j, 0.5 * step, dzs, q2s, oks, zmins, kzs, scale_abs,
+                                     scale_arg)
+        out = max(out, cbs[j])
+    return out
+
+
+@njit(cache=True)
+def _floor_check(a, a0, k, consts, z_le, scale, kv, pv, phi_le, t0, xst, fs, free, grid,
+                 cbs):
+    """The local-thickness floor: exact at the stations ``xst``, certified between them.
+
+    At each station the thickness y_u − y_l is computed at exact contour points; below zero is
+    a crossing (V_CROSSED), below the floor V_THIN.  Between two stations h apart,
+    t ≥ min(t₀, t₁) − C h²/8 with C bounding |t''| (:func:`_graph_curvature` on each
+    surface's arc between the two stations' circle angles); where that does not show
+    t ≥ FLOOR_BETWEEN × floor the interval is halved at an exact midpoint, whose thickness is
+    a witness if it falls below (V_THIN, V_CROSSED).  V_UNCERTIFIED when the budget or the
+    stack runs out.  Needs single-valued surfaces (:func:`_validity_fold` first).
+
+    Returns (code, margin): margin = the least (thickness − floor) over the stations, chords.
+    ``free`` receives the circle ranges of the two surfaces over [FLOOR_START, FLOOR_END].
+    """
+    ns = xst.shape[0]
+    cap = fs.shape[1]
+    dzs, q2s, oks, zmins, kzs = grid
+    sabs = abs(scale)
+    sarg = math.atan2(scale.imag, scale.real)
+    cbs[:] = math.nan
+    margin = _INF
+    top = 0
+    pu_prev = 0.0
+    pl_prev = 0.0
+    tp = 0.0
+    for i in range(ns):
+        x = xst[i]
+        gu = _interp(-x, kv, pv)
+        gl = _interp(x, kv, pv)
+        zu, pu, oku = _point_at_x(a, a0, k, z_le, scale, gu, 1e-12, phi_le, x)
+        zl, pl, okl = _point_at_x(a, a0, k, z_le, scale, gl, phi_le, _TWO_PI - 1e-12, x)
+        if not (oku and okl):
+            return V_UNCERTIFIED, margin
+        t = zu.imag - zl.imag
+        if t < 0.0:
+            return V_CROSSED, t - floor_at(x, t0)
+        fx = floor_at(x, t0)
+        if t < fx:
+            return V_THIN, t - fx
+        if i < FLOOR_STATIONS:
+            margin = min(margin, t - fx)
+        if i == 0:
+            free[1] = pu
+            free[2] = pl
+        else:
+            fs[0, top] = xst[i - 1]
+            fs[1, top] = x
+            fs[2, top] = tp
+            fs[3, top] = t
+            fs[4, top] = pu_prev
+            fs[5, top] = pu
+            fs[6, top] = pl_prev
+            fs[7, top] = pl
+            top += 1
+        pu_prev = pu
+        pl_prev = pl
+        tp = t
+    free[0] = pu_prev
+    free[3] = pl_prev
+    spent = 0
+    while top > 0:
+        top -= 1
+        x0, x1, t0_, t1_ = fs[0, top], fs[1, top], fs[2, top], fs[3, top]
+        pu0, pu1, pl0, pl1 = fs[4, top], fs[5, top], fs[6, top], fs[7, top]
+        need = FLOOR_BETWEEN * max(floor_at(x0, t0), floor_at(x1, t0))
+        hh = x1 - x0
+        room = min(t0_, t1_) - need - 1e-12  # what the curvature term may take
+        if room > 0.0:
+            # the grid arcs' bounds first (no new map evaluation), then the arcs themselves
+            cu = _span_curvature(pu0, pu1, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+            cl = _span_curvature(pl0, pl1, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+            if (cu + cl) * hh * hh * 0.125 <= room:
+                continue
+            cu = _graph_curvature(a, a0, k, consts, z_le, scale, pu0, pu1)
+            cl = _graph_curvature(a, a0, k, consts, z_le, scale, pl0, pl1)
+            if (cu + cl) * hh * hh * 0.125 <= room:
+                continue
+        spent += 1
+        if spent > _FLOOR_BUDGET or top + 2 > cap:
+            return V_UNCERTIFIED, margin
+        xm = 0.5 * (x0 + x1)
+        zu, pum, oku = _point_at_x(a, a0, k, z_le, scale, 0.5 * (pu0 + pu1), min(pu0, pu1),
+                                   max(pu0, pu1), xm)
+        zl, plm, okl = _point_at_x(a, a0, k, z_le, scale, 0.5 * (pl0 + pl1), min(pl0, pl1),
+                                   max(pl0, pl1), xm)
+        if not (oku and okl):
+            return V_UNCERTIFIED, margin
+        tm = zu.imag - zl.imag
+        if tm < 0.0:
+            return V_CROSSED, margin
+        if tm < FLOOR_BETWEEN * floor_at(xm, t0):
+            return V_THIN, margin
+        for side in range(2):
+            fs[0, top] = x0 if side == 0 else xm
+            fs[1, top] = xm if side == 0 else x1
+            fs[2, top] = t0_ if side == 0 else tm
+            fs[3, top] = tm if side == 0 else t1_
+            fs[4, top] = pu0 if side == 0 else pum
+            fs[5, top] = pum if side == 0 else pu1
+            fs[6, top] = pl0 if side == 0 else plm
+            fs[7, top] = plm if side == 0 else pl1
+            top += 1
+    return V_OK, margin
+
+
+@njit(cache=True)
+def _crossing_witness(a, a0, k, z_le, scale, kv, yv, pv, phi_le, xs):
+    """A witness that the surfaces cross: a station of ``xs`` where the sampled contour puts
+    the upper surface below the lower one and the exact points confirm it."""
+    for i in range(xs.shape[0]):
+        x = xs[i]
+        if _interp(-x, kv, yv) - _interp(x, kv, yv) < 0.0:
+            zu, _, oku = _point_at_x(a, a0, k, z_le, scale, _interp(-x, kv, pv), 1e-12, phi_le,
+                                     x)
+            zl, _, okl = _point_at_x(a, a0, k, z_le, scale, _interp(x, kv, pv), phi_le,
+                                     _TWO_PI - 1e-12, x)
+            if oku and okl and zu.imag - zl.imag < 0.0:
+                return True
+    return False
+
+
+@njit(cache=True)
+def _contour_keys(phis, zs, phi_le, z_le, scale, keys, yk, pk):
+    """The contour in the chord frame laid along one increasing key, −x on the upper surface
+    and +x on the lower, with its y and circle angle (for interpolated starting points).
+    Returns the number of keys."""
+    p = phis.shape[0]
+    n = 0
+    keys[n] = -1.0
+    yk[n] = 0.0
+    pk[n] = 0.0
+    n += 1
+    jle = p
+    for j in range(p):
+        if phis[j] >= phi_le:
+            jle = j
+            break
+        zc = (zs[j] - z_le) * scale
+        keys[n] = -zc.real
+        yk[n] = zc.imag
+        pk[n] = phis[j]
+        n += 1
+    keys[n] = 0.0
+    yk[n] = 0.0
+    pk[n] = phi_le
+    n += 1
+    for j in range(jle, p):
+        zc = (zs[j] - z_le) * scale
+        keys[n] = zc.real
+        yk[n] = zc.imag
+        pk[n] = phis[j]
+        n += 1
+    keys[n] = 1.0
+    yk[n] = 0.0
+    pk[n] = _TWO_PI
+    return n + 1
+
+
+@njit(cache=True)
+def _certify(a, a0, k, consts, phis, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds,
+             margin, t0, xst, xs, keys, yk, pk, fs, cbs, sc, sd, ste, ws, wb, wi):
+    """Every validity check of one prepared section, cheapest and most often failing first.
+
+    1. The near-circle (:func:`_validity_map`).  2. The chord frame (:func:`_frame`) and
+    single-valued surfaces (:func:`_validity_fold`).  3. A crossing witness at the stations
+    ``xs`` (:func:`_crossing_witness`), so that a crossed section is rejected in microseconds.
+    4. The floor (:func:`_floor_check`; with t₀ = 0, positive thickness), which also shows the
+    surfaces apart from FLOOR_START to the last tail station.  5. A simple contour
+    (:func:`_stage2_simple`) over the arcs the floor did not clear: the nose and the last
+    stretch of the trailing edge.
+
+    Returns (code, φ_LE, z_LE, floor margin, number of contour keys).
+    """
+    code, _ = _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, ste,
+                            ws, wb, wi)
+    if code != V_OK:
+        return code, math.nan, 0j, math.nan, 0
+    phi_le, z_le = _frame(a, a0, k, phis, zs)
+    scale = 1.0 / (k - z_le)
+    code = _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le,
+                          math.atan2(scale.imag, scale.real), sc, sd, ste)
+    if code != V_OK:
+        return code, math.nan, 0j, math.nan, 0
+    nk = _contour_keys(phis, zs, phi_le, z_le, scale, keys, yk, pk)
+    kv = keys[:nk]
+    yv = yk[:nk]
+    pv = pk[:nk]
+    if _crossing_witness(a, a0, k, z_le, scale, kv, yv, pv, phi_le, xs):
+        return V_CROSSED, math.nan, 0j, math.nan, 0
+    free = np.array([1.0, 0.0, 1.0, 0.0])
+    code, fmargin = _floor_check(a, a0, k, consts, z_le, scale, kv, pv, phi_le, t0, xst, fs,
+                                 free, (dzs, q2s, oks, zmins, kzs), cbs)
+    if code != V_OK:
+        return code, math.nan, 0j, math.nan, 0
+    if t0 <= 0.0:
+        fmargin = math.nan
+    if not _stage2_simple(a, a0, k, consts, phis, gs, es, hs, ws, wb, wi, free):
+        return V_UNCERTIFIED, math.nan, 0j, math.nan, 0
+    return V_OK, phi_le, z_le, fmargin, nk
 
 
 @njit(cache=True)
@@ -1218,20 +1584,29 @@ def _grid_phi(p):
 
 
 @njit(cache=True)
-def _validity_one(a, tau, zeta, phis, crit_radius, margin, sc, sd, ste, ws, wb, wi):
-    """Status code, φ_LE and z_LE of one section (the frame only where the map is valid)."""
+def _stations(m):
+    """m cosine-spaced chord stations inside (0, 1) (the crossing witness, thickness, camber)."""
+    xs = np.empty(m)
+    for i in range(m):
+        xs[i] = 0.5 * (1.0 - math.cos(math.pi * (i + 1) / (m + 1)))
+    return xs
+
+
+#: chord stations where the sampled thickness and camber are read (and a crossing looked for)
+_M_ST = 65
+
+
+@njit(cache=True)
+def _validity_one(a, tau, zeta, phis, crit_radius, margin, t0, xst, xs, keys, yk, pk, fs, sc,
+                  sd, ste, ws, wb, wi):
+    """Status code and floor margin of one section (:func:`_certify`)."""
     if not _schur_cohn(a, crit_radius):
-        return V_CRITICAL, math.nan, 0j
+        return V_CRITICAL, math.nan
     a0, k, consts, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds = _prepare(a, tau, zeta)
-    code, _ = _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd, ste,
-                            ws, wb, wi)
-    if code != V_OK:
-        return code, math.nan, 0j
-    phi_le, z_le = _frame(a, a0, k, phis, zs)
-    scale = 1.0 / (k - z_le)
-    code = _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le,
-                          math.atan2(scale.imag, scale.real), sc, sd, ste)
-    return code, phi_le, z_le
+    code, _, _, fmargin, _ = _certify(a, a0, k, consts, phis, gs, es, hs, zs, dzs, q2s, oks,
+                                      zmins, kzs, dlogs, gds, margin, t0, xst, xs, keys, yk, pk,
+                                      fs, np.empty(phis.shape[0]), sc, sd, ste, ws, wb, wi)
+    return code, fmargin
 
 
 @njit(cache=True)
@@ -1244,26 +1619,37 @@ def critical_batch(coeffs, radius):
 
 
 @njit(cache=True)
-def validity_batch(coeffs, tau, points, crit_radius, margin):
-    """Certified validity of each section: status codes (B,) (0 valid; see foilmap.section.status)."""
+def validity_batch(coeffs, tau, points, crit_radius, margin, floor=0.0):
+    """Certified validity of each section: status codes (B,) (0 valid; see
+    foilmap.section.status) and the floor margin (B,) (the least thickness minus the floor over
+    the floor's stations, NaN without a floor or where invalid).  ``floor`` is the
+    local-thickness floor t₀ in chords (0: none)."""
     nb = coeffs.shape[0]
     phis = _grid_phi(points)
     zeta = np.exp(1j * phis)
     code = np.zeros(nb, dtype=np.int8)
+    fm = np.full(nb, np.nan)
     sc, sd, ste, ws, wb, wi = _workspace(points)
+    xst = floor_stations()
+    xs = _stations(_M_ST)
+    keys = np.empty(points + 3)
+    yk = np.empty(points + 3)
+    pk = np.empty(points + 3)
+    fs = np.empty((8, _STACK))
     for i in range(nb):
         if not (np.all(np.isfinite(coeffs[i].real)) and np.all(np.isfinite(coeffs[i].imag))
                 and math.isfinite(tau[i])):
             code[i] = V_NON_FINITE
             continue
-        c, _, _ = _validity_one(coeffs[i], tau[i], zeta, phis, crit_radius, margin, sc, sd, ste,
-                                ws, wb, wi)
+        c, m = _validity_one(coeffs[i], tau[i], zeta, phis, crit_radius, margin, floor, xst, xs,
+                             keys, yk, pk, fs, sc, sd, ste, ws, wb, wi)
         code[i] = c
-    return code
+        fm[i] = m
+    return code, fm
 
 
 @njit(cache=True)
-def peak_batch(coeffs, tau, alpha_c, points, tol):
+def peak_batch(coeffs, tau, alpha_c, points, tol, budget=_BUDGET):
     """Certified peak speed of each section at circle-plane angle α': (q_max, φ_max,
     certified), shapes (B,); NaN where α' is not finite."""
     nb = coeffs.shape[0]
@@ -1282,13 +1668,13 @@ def peak_batch(coeffs, tau, alpha_c, points, tol):
         a0, k, consts, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds = _prepare(
             a, tau[i], zeta)
         q[i], phi[i], cert[i] = _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins,
-                                      kzs, alpha_c[i], tol, sc, sd, ste, 0.0)
+                                      kzs, alpha_c[i], tol, sc, sd, ste, 0.0, budget)
     return q, phi, cert
 
 
 @njit(cache=True)
 def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stations, want,
-                 reynolds, tol, design_peak=True):
+                 reynolds, tol, design_peak=True, floor=0.0, budget=_BUDGET):
     """Everything a search needs of a batch, one section at a time.
 
     Parameters
@@ -1301,7 +1687,10 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
     peak suction at the design Cl itself (``cp_min``, ``cp_min_x``, ``cp_min_upper``).  A
     search needs only the largest peak over its Cls: without ``design_peak`` the ends of the
     range are certified first and the design Cl, inside it, is only cleared against them (those
-    three figures are then NaN).
+    three figures are then NaN).  floor : the local-thickness floor t₀ in chords (0: none;
+    :func:`_floor_check`), whose margin is the figure ``floor_margin``.  A section whose
+    certificate of the peak gives up (``budget`` arc evaluations per Cl, or the stack) gets
+    V_UNCERTIFIED, never figures.
 
     Returns
     -------
@@ -1319,10 +1708,11 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
     peaks = np.full(nb, np.nan)
     thick = np.full((nb, stations.shape[0]), np.nan)
     sc, sd, ste, ws, wb, wi = _workspace(points)
-    m_st = 65
-    xs = np.empty(m_st)
-    for i in range(m_st):
-        xs[i] = 0.5 * (1.0 - math.cos(math.pi * (i + 1) / (m_st + 1)))
+    m_st = _M_ST
+    xs = _stations(m_st)
+    xst = floor_stations()
+    fs = np.empty((8, _STACK))
+    cbs = np.empty(p)
     keys = np.empty(p + 3)
     yk = np.empty(p + 3)
     pk = np.empty(p + 3)
@@ -1338,21 +1728,16 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
             continue
         a0, k, consts, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds = _prepare(
             a, t_b, zeta)
-        code, _ = _validity_map(a, a0, k, consts, phis, gs, es, hs, oks, gds, margin, sc, sd,
-                                ste, ws, wb, wi)
+        code, phi_le, z_le, fmargin, nk = _certify(
+            a, a0, k, consts, phis, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, dlogs, gds,
+            margin, floor, xst, xs, keys, yk, pk, fs, cbs, sc, sd, ste, ws, wb, wi)
         if code != V_OK:
             status[b] = code
             continue
-        phi_le, z_le = _frame(a, a0, k, phis, zs)
         te_m_le = k - z_le
         chord = abs(te_m_le)
         gamma = math.atan2(te_m_le.imag, te_m_le.real)
         scale = 1.0 / te_m_le
-        code = _validity_fold(a, a0, k, consts, phis, dzs, q2s, oks, kzs, dlogs, phi_le,
-                              math.atan2(scale.imag, scale.real), sc, sd, ste)
-        if code != V_OK:
-            status[b] = code
-            continue
         u = math.exp(a0.real)
         clmax = 8.0 * math.pi * u / chord
         reach = True
@@ -1372,11 +1757,15 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         phi_pk = 0.0
         q_pk = math.nan
         q_all = 0.0
+        certified = True
         for i in range(ncl):
             c = i if (design_peak or ncl == 1) else (i + 1) % ncl
             ac = math.asin(cls[c] / clmax)
-            qm, pm, _ = _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs,
-                              ac, tol, sc, sd, ste, q_all)
+            qm, pm, cert = _peak(a, a0, k, consts, phis, gs, es, hs, dzs, q2s, oks, zmins, kzs,
+                                 ac, tol, sc, sd, ste, q_all, budget)
+            if not cert:
+                certified = False
+                break
             if c == 0 and i == 0:
                 q_pk = qm
                 phi_pk = pm
@@ -1384,6 +1773,9 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
                 q_all = math.nan
                 break
             q_all = max(q_all, qm)
+        if not certified:
+            status[b] = V_UNCERTIFIED
+            continue
         peaks[b] = q_all * q_all - 1.0
         z_pk = complex(math.nan, 0.0)  # the design Cl's own peak, where it was asked for
         if not math.isnan(q_pk):
@@ -1399,38 +1791,10 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         force = 1j * circ * cmath.exp(1j * (alpha + gamma))
         z_q = z_le + 0.25 / scale
         cm = -2.0 * (m0 - (z_q.conjugate() * force).imag) / (chord * chord)
-        # geometry: the contour laid along the key −x (upper), +x (lower)
-        n = 0
-        keys[n] = -1.0
-        yk[n] = 0.0
-        pk[n] = 0.0
-        n += 1
-        jle = p
-        for j in range(p):
-            if phis[j] >= phi_le:
-                jle = j
-                break
-            zc = (zs[j] - z_le) * scale
-            keys[n] = -zc.real
-            yk[n] = zc.imag
-            pk[n] = phis[j]
-            n += 1
-        keys[n] = 0.0
-        yk[n] = 0.0
-        pk[n] = phi_le
-        n += 1
-        for j in range(jle, p):
-            zc = (zs[j] - z_le) * scale
-            keys[n] = zc.real
-            yk[n] = zc.imag
-            pk[n] = phis[j]
-            n += 1
-        keys[n] = 1.0
-        yk[n] = 0.0
-        pk[n] = _TWO_PI
-        kv = keys[: n + 1]
-        yv = yk[: n + 1]
-        pv = pk[: n + 1]
+        # geometry: the contour laid along the key −x (upper), +x (lower) (by _certify)
+        kv = keys[:nk]
+        yv = yk[:nk]
+        pv = pk[:nk]
         jt = 0
         jc = 0
         tmax = -_INF
@@ -1519,6 +1883,7 @@ def search_batch(coeffs, tau, cls, points, crit_radius, margin, proxy_end, stati
         f[20] = st_up
         f[21] = st_lo
         f[22] = math.nan if math.isnan(q_pk) else (1.0 if phi_pk < phi_le else 0.0)
+        f[23] = fmargin
         if not (math.isfinite(f[0]) and math.isfinite(f[1]) and math.isfinite(f[5])
                 and math.isfinite(peaks[b]) and math.isfinite(f[8]) and math.isfinite(f[12])):
             status[b] = V_NON_FINITE
@@ -1631,8 +1996,9 @@ def warm_up() -> None:
     """
     a = np.array([[-0.08 + 0.04j, 0.004 - 0.003j]])
     tau = np.array([0.17])
-    validity_batch(a, tau, 64, 0.95, 0.02)
+    validity_batch(a, tau, 64, 0.95, 0.02, 0.005)
     peak_batch(a, tau, np.array([0.05]), 64, PEAK_TOLERANCE)
     critical_batch(a, 0.95)
-    search_batch(a, tau, np.array([0.5]), 64, 0.95, 0.02, 0.9, np.zeros(0), 0, 0.0,
-                 PEAK_TOLERANCE)
+    for design_peak in (True, False):  # the forms commands and searches call
+        search_batch(a, tau, np.array([0.5]), 64, 0.95, 0.02, 0.9, np.zeros(0), 0, 0.0,
+                     PEAK_TOLERANCE, design_peak, 0.005)

@@ -26,8 +26,8 @@ from foilmap.section.flow import (
     flow_at_alpha,
     flow_at_cl,
     max_ideal_cl,
+    certified_peak,
     moment_quarter_chord,
-    peak_suction,
     speed_on_circle,
     surface_speed,
     zero_lift_angle,
@@ -98,6 +98,8 @@ class Evaluation:
     stratford_margin: np.ndarray
     stratford_sep_x_upper: np.ndarray
     stratford_sep_x_lower: np.ndarray
+    #: least (local thickness − floor) over the floor's stations, chords; NaN without a floor
+    floor_margin: np.ndarray
 
     def __len__(self) -> int:
         return self.status.shape[0]
@@ -172,7 +174,10 @@ class Analysis:
         status = np.where(self.evaluation.status == Status.OK, fl.status,
                           self.evaluation.status).astype(np.int8)
         with np.errstate(all="ignore"):
-            q_pk, _ = peak_suction(self.sections, _valid_only(fl, status), self.grid.points)
+            q_pk, _, cert = certified_peak(self.sections, _valid_only(fl, status),
+                                           self.grid.points)
+        status = np.where((status == Status.OK) & ~cert, Status.UNCERTIFIED,
+                          status).astype(np.int8)
         peak = np.where(status == Status.OK, q_pk**2 - 1.0, np.nan)
         return peak, status
 
@@ -189,6 +194,7 @@ def analyse(
     critical_margin: float = DEFAULT_CRITICAL_MARGIN,
     singular_margin: float = DEFAULT_SINGULAR_MARGIN,
     reference_le=None,
+    floor: float = 0.0,
 ) -> Analysis:
     """Evaluate a batch of sections at a target Cl or at an angle of attack.
 
@@ -228,9 +234,9 @@ def analyse(
     with np.errstate(all="ignore"):
         # validity certified between samples (the compiled checks: critical points, star shape,
         # the second singular point, a simple contour, single-valued surfaces)
-        status = _compiled.validity_batch(np.ascontiguousarray(sections.coefficients),
-                                          sections.te_angle, points,
-                                          1.0 - critical_margin, singular_margin)
+        status, floor_margin = _compiled.validity_batch(
+            np.ascontiguousarray(sections.coefficients), sections.te_angle, points,
+            1.0 - critical_margin, singular_margin, float(floor))
         mv = map_on_grid(sections, grid)
         frame = chord_frame(sections, mv, grid)
         zc = frame.to_chord(mv.z)
@@ -244,8 +250,9 @@ def analyse(
         )
         status = np.where(status == Status.OK, flow.status, status).astype(np.int8)
         q = surface_speed(flow, mv, grid)
-        q_pk, phi_pk = peak_suction(
-            sections, _valid_only(flow, status), points)
+        q_pk, phi_pk, certified = certified_peak(sections, _valid_only(flow, status), points)
+        status = np.where((status == Status.OK) & ~certified, Status.UNCERTIFIED,
+                          status).astype(np.int8)
         phi_pk = np.where(np.isfinite(phi_pk), phi_pk, 0.0)
         zpk = frame.to_chord(map_at(sections, np.exp(1j * phi_pk)[:, None]).z)[:, 0]
         cm = moment_quarter_chord(sections, aframe, flow)
@@ -308,6 +315,7 @@ def analyse(
             stratford_margin=st_m,
             stratford_sep_x_upper=st_up,
             stratford_sep_x_lower=st_lo,
+            floor_margin=floor_margin,
         )
         core = ("cl", "alpha", "cm_quarter_chord", "cp_min", "thickness", "le_radius")
         finite = np.all([np.isfinite(values[n]) for n in core], axis=0)

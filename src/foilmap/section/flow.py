@@ -30,6 +30,7 @@ __all__ = [
     "surface_speed",
     "speed_log_derivative",
     "peak_suction",
+    "certified_peak",
     "moment_quarter_chord",
 ]
 
@@ -141,10 +142,24 @@ def peak_suction(sections: SectionSet, flow: FlowState, points: int = 256
     Returns ``(q_max, phi_peak)``, shapes (B,); the peak suction is −Cp_min = q_max² − 1.
     NaN where the flow angle is not finite.
     """
-    q, phi, _ = _compiled.peak_batch(np.ascontiguousarray(sections.coefficients), sections.te_angle,
-                                     np.asarray(flow.alpha_circle, dtype=float), int(points),
-                                     _compiled.PEAK_TOLERANCE)
+    q, phi, _ = certified_peak(sections, flow, points)
     return q, phi
+
+
+def certified_peak(sections: SectionSet, flow: FlowState, points: int = 256
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`peak_suction` with its certificate: ``(q_max, phi_peak, certified)``.
+
+    ``certified`` is False where the branch and bound ran out of budget or stack before it
+    showed every arc below the reported speed: there the value is only the largest speed found
+    (a lower bound), and evaluations give the section the status ``uncertified``.  Rows whose
+    flow angle is not finite are True (nothing was asked).
+    """
+    alpha_c = np.asarray(flow.alpha_circle, dtype=float)
+    q, phi, cert = _compiled.peak_batch(np.ascontiguousarray(sections.coefficients),
+                                        sections.te_angle, alpha_c, int(points),
+                                        _compiled.PEAK_TOLERANCE)
+    return q, phi, cert | ~np.isfinite(alpha_c)
 
 
 def moment_quarter_chord(sections: SectionSet, frame: ChordFrame, flow: FlowState) -> np.ndarray:

@@ -18,6 +18,8 @@ from foilmap.section.conformal import CircleGrid, MapValues, SectionSet, map_at,
 __all__ = [
     "ChordFrame",
     "chord_frame",
+    "thickness_floor",
+    "floor_clearance",
     "leading_edge_radius",
     "SurfaceSplit",
     "split_surfaces",
@@ -330,3 +332,35 @@ def coordinates(
     phi[:, 1 + n_up] = frame.phi_le
     phi[:, 2 + n_up : -1] = phi_in[:, n_up:]
     return out, phi
+
+
+def thickness_floor(x: np.ndarray, t0: float) -> np.ndarray:
+    """The local-thickness floor at chord stations ``x``: t₀ min(1, x/0.05, ((1 − x)/0.2)²)
+    (the compiled kernel's :func:`~foilmap.section._compiled.floor_at`, whose constants it
+    reads)."""
+    from foilmap.section import _compiled as C
+
+    x = np.asarray(x, dtype=float)
+    w = (1.0 - x) / (1.0 - C.FLOOR_TAPER)
+    return t0 * np.minimum(np.minimum(1.0, x / C.FLOOR_NOSE), w * w)
+
+
+def floor_clearance(sections: SectionSet, t0: float, points: int = 256
+                    ) -> tuple[np.ndarray, np.ndarray]:
+    """How far each valid section's local thickness stays above the floor t₀ at the floor's
+    exact stations: ``(least thickness − floor, its station x/c)``, shapes (B,), NaN where the
+    section is invalid (exact contour points; the search's ``floor_margin`` figure)."""
+    from foilmap.section import _compiled as C
+
+    grid = CircleGrid.get(points, max(sections.n_coefficients, 1))
+    mv = map_on_grid(sections, grid)
+    frame = chord_frame(sections, mv, grid)
+    split = split_surfaces(frame.to_chord(mv.z), grid.phi, frame.phi_le)
+    xs = C.floor_stations()[: C.FLOOR_STATIONS]  # the design stations (without the tail)
+    with np.errstate(all="ignore"):
+        t = (exact_points_at_x(sections, frame, split, -xs, iterations=8).imag
+             - exact_points_at_x(sections, frame, split, xs, iterations=8).imag)
+    m = t - thickness_floor(xs, t0)[None, :]
+    j = np.nanargmin(np.where(np.isfinite(m), m, np.inf), axis=1)
+    rows = np.arange(len(sections))
+    return m[rows, j], xs[j]

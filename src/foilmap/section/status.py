@@ -26,8 +26,7 @@ class Status(IntEnum):
     BRANCH_CUT = 3
     #: a surface is not single-valued in x (fold-over or self-intersection)
     FOLDED = 4
-    #: upper and lower surfaces cross (the contour is not a simple curve, so the thickness is not
-    #: positive everywhere inside the chord)
+    #: upper and lower surfaces cross: an exact contour point where the thickness is below zero
     NEGATIVE_THICKNESS = 5
     #: the target Cl exceeds the section's maximum ideal lift 8π e^{Re A₀} / c
     ABOVE_MAX_LIFT = 6
@@ -36,6 +35,12 @@ class Status(IntEnum):
     #: the near-circle is not star-shaped about its centre, so the contour cannot be certified
     #: simple (coefficients far outside the usual range)
     NOT_STARLIKE = 8
+    #: the local thickness falls below the floor of the study (``min_local_thickness``) at an
+    #: exact station, or below half of it between stations (docs/study-file.md)
+    BELOW_FLOOR = 9
+    #: a certificate ran out of budget or stack before it could either prove the check or find
+    #: a witness against it: the section is rejected unproven (counted apart, never a pass)
+    UNCERTIFIED = 10
 
     @property
     def label(self) -> str:
@@ -49,11 +54,13 @@ _TEXT = {
     Status.SINGULAR_POINT: "the near-circle does not enclose z1 = -1 with the required margin",
     Status.BRANCH_CUT: "the near-circle crosses the branch cut [-1, 1]",
     Status.FOLDED: "a surface folds over (not single-valued in x)",
-    Status.NEGATIVE_THICKNESS: "the surfaces cross, or come too close at a cusped edge to be "
-                               "certified apart (thickness not positive)",
+    Status.NEGATIVE_THICKNESS: "the surfaces cross (thickness below zero at an exact point)",
     Status.ABOVE_MAX_LIFT: "the target Cl is above the section's maximum ideal lift",
     Status.NON_FINITE: "the evaluation gave non-finite figures",
     Status.NOT_STARLIKE: "the near-circle is not star-shaped, so the contour is not certified simple",
+    Status.BELOW_FLOOR: "the local thickness falls below the floor (min_local_thickness)",
+    Status.UNCERTIFIED: "a certificate gave up before proving the section valid or invalid "
+                        "(rejected unproven)",
 }
 
 
