@@ -281,9 +281,9 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None,
           f"{len(failed)} failed; logs in {out / 'runs'}")
     for s in failed:
         print(f"  run {s['run']} {s.get('state', 'failed')}: {s.get('error', 'unknown error')}")
-    from foilmap.report.study import is_multi_objective, sharp_nose_warnings
+    from foilmap.report.study import design_warnings, is_multi_objective
 
-    for line in sharp_nose_warnings(out):
+    for line in design_warnings(out):
         print(line)
     done = [s for s in summaries if s.get("state") == "complete"]
     if done and not is_multi_objective(study) and all(s.get("best") is None for s in done):
@@ -314,8 +314,14 @@ def cmd_status(args) -> int:
     from foilmap.report.study import format_status
     from foilmap.store.folder import StudyFolder
 
+    from foilmap.report.study import design_warnings
+
     st = StudyFolder(args.folder).status()
-    print(json.dumps(_display(st), indent=1) if args.json else format_status(st))
+    st["warnings"] = design_warnings(Path(args.folder))
+    if args.json:
+        print(json.dumps(_display(st), indent=1))
+    else:
+        print("\n".join([format_status(st), *st["warnings"]]))
     return EXIT_OK
 
 
@@ -330,6 +336,11 @@ def cmd_best(args) -> int:
     write_text_atomic(args.output, text)
     print(f"best feasible design of {d.run_id} (objective {d.fun:.6g}, evaluation "
           f"{d.evaluation}) written to {args.output}")
+    from foilmap.report.study import design_warnings
+
+    for line in design_warnings(Path(args.folder)):
+        if f" run {d.run_id} " in line:
+            print(line)
     print(CAUTION)
     return EXIT_OK
 

@@ -156,6 +156,12 @@ class Problem:
         return tuple(p)
 
     @property
+    def floor(self) -> float:
+        """The local-thickness floor t₀ in chords (0: none); a candidate below it gets the
+        status ``below_floor``."""
+        return float(self.constraints.get("min_local_thickness", 0.0))
+
+    @property
     def stations(self) -> np.ndarray:
         """Chord stations of the ``station_thickness`` constraints, shape (M,)."""
         return np.array([x for x, _ in self.constraints.get("station_thickness", [])],
@@ -217,7 +223,8 @@ class Problem:
             np.array(self.point.cls, dtype=float), int(self.points),
             1.0 - DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN, float(self.proxy_end),
             self.stations, want, float(self.point.reynolds or 0.0), _compiled.PEAK_TOLERANCE,
-            False)  # the largest peak over the Cls is all a search uses
+            False,  # the largest peak over the Cls is all a search uses
+            self.floor)
         ev = Evaluation.from_figures(status, fig)
         return ev, peaks, st
 
@@ -227,7 +234,7 @@ class Problem:
         from foilmap.section.screening import screen_analysis
 
         an = analyse(sec, cl=self.point.cl, points=self.points, proxies=self._proxies(),
-                     reynolds=self.point.reynolds, proxy_end=self.proxy_end)
+                     reynolds=self.point.reynolds, proxy_end=self.proxy_end, floor=self.floor)
         ev = an.evaluation
         status = ev.status.copy()
         peak = -ev.cp_min

@@ -130,6 +130,10 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "camber_x": Key("range", None, "[low, high] x/c window for the maximum camber",
                         0.0, 1.0),
         "min_le_radius": Key("float", None, "smallest leading-edge radius, chords", 0.0, 1.0),
+        "min_local_thickness": Key("float", 0.005, "local-thickness floor t0, chords: the "
+                                   "thickness at every x/c from 0.05 to 0.8 at least t0, ramping "
+                                   "from 0 at the leading edge and tapering as ((1 - x)/0.2)^2 "
+                                   "into the trailing-edge wedge (0 switches it off)", 0.0, 0.1),
         "te_angle_deg": Key("range", None, "[low, high] bounds on the trailing-edge angle, "
                             "degrees", 0.0, 60.0),
         "cm": Key("range", None, "[low, high] bounds on Cm c/4 at the design Cl", -2.0, 2.0),

@@ -21,7 +21,7 @@ from pathlib import Path
 
 from foilmap._version import __version__
 from foilmap.errors import InputError
-from foilmap.report.study import LE_RADIUS_FLOOR, runs_figure
+from foilmap.report.study import LE_RADIUS_FLOOR, floor_warnings, runs_figure
 from foilmap.report.text import CAUTION, format_number, plural
 from foilmap.store.folder import StudyFolder, collect_fronts, is_multi_objective
 
@@ -123,8 +123,11 @@ def _runs(st: dict) -> str:
             "failed", "interrupted", "unreadable", "unfinished") else ""
         best = _num(r["best"], 6) if r["best"] is not None else (
             f"HV {_num(r['hypervolume'], 5)}" if r.get("hypervolume") is not None else "-")
+        rej = r.get("rejected") or {}
+        n = max(r["evaluations"], 1)
         rows.append([r["run"], _Raw(f'<span class="{cls}">{html.escape(state)}</span>'),
                      r["generations"], r["evaluations"], best,
+                     f"{rej.get('below_floor', 0) / n:.1%}", rej.get("uncertified", 0),
                      _num(r["elapsed_s"], 1)])
     rate = st.get("evaluations_per_s")
     head = (f"<h3>Runs</h3><p>{plural(len(st['runs']), 'run')}: " + ", ".join(
@@ -132,7 +135,7 @@ def _runs(st: dict) -> str:
         + f"; {st['evaluations']} evaluations"
         + (f", {rate:.0f} per second of search" if rate else "") + ".</p>")
     return head + _table(["run", "state", "generations", "evaluations", "best feasible",
-                          "time s"], rows, {2, 3, 4, 5})
+                          "below floor", "uncertified", "time s"], rows, {2, 3, 4, 5, 6, 7})
 
 
 def _chosen_designs(folder: StudyFolder) -> list:
@@ -255,6 +258,12 @@ def _study_section(folder: StudyFolder) -> str:
         parts.append(f"<h3>{title}</h3>" + _img(conv, title, 90))
     except InputError as exc:
         warnings.append(str(exc))
+    for r in st["runs"]:
+        unproven = (r.get("rejected") or {}).get("uncertified", 0)
+        if unproven:
+            warnings.append(f"run {r['run']}: {plural(unproven, 'evaluation')} rejected unproven "
+                            "(a certificate gave up before proving the section valid or not)")
+    warnings += floor_warnings(folder.path)
     designs, dw = _designs(folder)
     warnings += dw
     parts.append(designs)

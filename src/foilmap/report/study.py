@@ -13,8 +13,8 @@ from foilmap.errors import InputError
 from foilmap.report.text import plural
 from foilmap.store.folder import StudyFolder, is_multi_objective
 
-__all__ = ["format_status", "damage_lines", "sharp_nose_warnings", "runs_figure", "plot_runs",
-           "LE_RADIUS_FLOOR", "is_multi_objective"]
+__all__ = ["format_status", "damage_lines", "sharp_nose_warnings", "floor_warnings", "design_warnings",
+           "runs_figure", "plot_runs", "LE_RADIUS_FLOOR", "ON_FLOOR", "is_multi_objective"]
 
 
 def format_status(st: dict) -> str:
@@ -35,6 +35,18 @@ def format_status(st: dict) -> str:
         el = "-" if r["elapsed_s"] is None else f"{r['elapsed_s']:.1f}"
         lines.append(f"{r['run']:<28} {r['state']:<11} {r['generations']:>6} "
                      f"{r['evaluations']:>8} {best:>14} {el:>8}")
+    notes = []
+    for r in st["runs"]:
+        rej = r.get("rejected") or {}
+        if rej.get("uncertified"):
+            notes.append(f"run {r['run']}: {plural(rej['uncertified'], 'evaluation')} rejected "
+                         "unproven (a certificate gave up: uncertified)")
+        if rej.get("below_floor"):
+            share = rej["below_floor"] / max(r["evaluations"], 1)
+            notes.append(f"run {r['run']}: {share:.1%} of evaluations below the local-thickness "
+                         "floor")
+    if notes:
+        lines += [""] + notes
     lines += damage_lines(st)
     return "\n".join(lines)
 
@@ -69,6 +81,42 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
                          f"set constraints.min_le_radius in the study to keep the search away "
                          f"from needle noses")
     return lines
+
+
+#: a best design whose least clearance above the local-thickness floor is under this share of
+#: the floor sits on it: the search thinned the section until the floor held it
+ON_FLOOR = 0.05
+
+
+def floor_warnings(out: Path) -> list[str]:
+    """One warning line per run whose best feasible design sits on the local-thickness floor
+    (``constraints.min_local_thickness``), naming where and the study keys that govern it."""
+    from foilmap.section.geometry import floor_clearance
+
+    folder = StudyFolder(out)
+    t0 = float(folder.study.constraints.get("min_local_thickness", 0.0))
+    if t0 <= 0.0:
+        return []
+    lines = []
+    for r, log in folder.logged_runs():
+        b = log.best()
+        if b is None:
+            continue
+        d = folder.design(r.run_id, b["index"], log)
+        margin, x = (float(v[0]) for v in floor_clearance(d.section, t0))
+        if margin < ON_FLOOR * t0:
+            lines.append(f"warning: the best design of run {r.run_id} sits on the local-thickness "
+                         f"floor (at x/c {x:.3f} it is {margin:.2g} c above the floor of "
+                         f"constraints.min_local_thickness = {t0:g} c): the search thinned it "
+                         f"until the floor held it; give constraints.station_thickness where "
+                         f"the section must be thicker, or raise the floor")
+    return lines
+
+
+def design_warnings(out: Path) -> list[str]:
+    """Every warning about the best designs of a study folder: needle noses and sections on
+    the local-thickness floor."""
+    return sharp_nose_warnings(out) + floor_warnings(out)
 
 
 def _front_runs_figure(folder: StudyFolder):

@@ -26,6 +26,7 @@ from foilmap.design.fronts import merge_archive
 from foilmap.design.results import FolderDesign, RunState
 from foilmap.design.study import Parametrisation, RunSpec, Study
 from foilmap.errors import InputError
+from foilmap.section.status import Status
 from foilmap.store.runlog import RunLog, read_run
 from foilmap.store.sectionfile import write_text_atomic
 from foilmap.store.studyfile import parse_study
@@ -38,7 +39,7 @@ STUDY_NAME = "study.toml"
 OPTIONS_NAME = "options.json"
 #: what the index keeps of a finished run (so that status need not open complete logs)
 INDEXED = ("state", "generations", "evaluations", "best", "best_objectives", "resumes",
-           "elapsed_s", "hypervolume")
+           "elapsed_s", "hypervolume", "rejected")
 
 
 def is_multi_objective(study: Study) -> bool:
@@ -57,7 +58,16 @@ def log_summary(run_id: str, log: RunLog) -> dict:
             "resumes": log.resumes,
             "elapsed_s": float(log.gen["time"][-1]) if log.generations else None,
             "hypervolume": (float(hv[-1]) if hv is not None and hv.size and np.isfinite(hv[-1])
-                            else None)}
+                            else None),
+            "rejected": rejected_counts(log)}
+
+
+def rejected_counts(log: RunLog) -> dict:
+    """How many of a run's evaluations each status other than ``ok`` rejected, by label
+    (``uncertified`` counts sections that a certificate gave up on: rejected unproven)."""
+    st = np.asarray(log.evals["status"]).astype(np.int64)
+    counts = np.bincount(st[st >= 0], minlength=len(Status)) if st.size else np.zeros(0, int)
+    return {Status(c).label: int(n) for c, n in enumerate(counts) if c != Status.OK and n}
 
 
 class StudyFolder:
