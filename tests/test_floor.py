@@ -95,14 +95,22 @@ def test_floor_rule_and_stations():
 def test_floor_margin_is_exact_at_the_stations():
     """The compiled kernel's least clearance equals the numpy route's exact points (Newton in
     numpy, from the sampled contour) to round-off, on sections near and far from the floor."""
-    sec = _around(ON_FLOOR, 2e-4, 40, 1)
-    status, margin = _validity(sec, T0)
-    ok = status == Status.OK
-    assert ok.sum() >= 10
-    ref, where = floor_clearance(sec, T0)
-    np.testing.assert_allclose(margin[ok], ref[ok], atol=1e-12)
-    assert np.all(margin[ok] >= 0.0)
-    assert np.all(np.isnan(margin[~ok]))
+    near = _around(ON_FLOOR, 2e-4, 40, 1)
+    # a 12 % section (invented, studies/example-section.toml), far above the floor
+    far = SectionSet(np.array([[-0.075 + 0.038j, 0.004 - 0.003j, -0.001 + 0.0008j]]),
+                     np.radians([10.0]))
+    for sec, t0 in ((near, T0), (far, T0), (ON_FLOOR, 0.0001)):
+        status, margin = _validity(sec, t0)
+        ok = status == Status.OK
+        assert ok.sum() >= min(10, len(sec))
+        ref, where = floor_clearance(sec, t0)
+        # exact where within a tenth of the floor, a lower bound (from the samples) above it
+        close = ok & (ref < 0.1 * t0)
+        np.testing.assert_allclose(margin[close], ref[close], atol=1e-12)
+        assert np.all(margin[ok] <= ref[ok] + 1e-12)
+        assert np.all(margin[ok & ~close] >= 0.1 * t0)
+        assert np.all(np.isnan(margin[~ok]))
+    assert np.sum(_validity(near, T0)[1] < 0.1 * T0) >= 10  # the exact branch was exercised
     # the design near the floor: within a hundred-thousandth of a chord, near x/c 0.93
     st, m = _validity(ON_FLOOR, T0)
     assert st[0] == Status.OK and 0.0 < m[0] < 2e-5
@@ -146,10 +154,12 @@ def _floor_check(sec: SectionSet, t0: float, stations: np.ndarray):
         a, float(sec.te_angle[0]), zeta)
     phi_le, z_le = C._frame(a, a0, k, phis, zs)
     scale = 1.0 / (k - z_le)
-    keys, yk, pk = np.empty(p + 3), np.empty(p + 3), np.empty(p + 3)
-    nk = C._contour_keys(phis, zs, phi_le, z_le, scale, keys, yk, pk)
+    keys, yk, pk, dk = np.empty(p + 3), np.empty(p + 3), np.empty(p + 3), np.empty(p + 3)
+    nk = C._contour_keys(phis, zs, dzs, phi_le, z_le, scale, keys, yk, pk, dk)
     free = np.array([1.0, 0.0, 1.0, 0.0])
-    code, margin = C._floor_check(a, a0, k, consts, z_le, scale, keys[:nk], pk[:nk], phi_le, t0,
+    code, margin = C._floor_check(a, a0, k, consts, z_le, scale, keys[:nk], yk[:nk], pk[:nk],
+                                  dk[:nk],
+                                  phi_le, t0,
                                   np.asarray(stations, dtype=float), np.empty((8, 8192)), free,
                                   (dzs, q2s, oks, zmins, kzs), np.empty(p))
     return code, margin, free

@@ -1056,25 +1056,47 @@ def floor_stations():
 
 
 @njit(cache=True)
-def _point_at_x(a, a0, k, z_le, scale, phi, lo, hi, xt):
+def _z_dz(a, a0, k, phi):
+    """The map and its derivative at ζ = e^{iφ} (what Newton's method on x(φ) needs)."""
+    zeta = complex(math.cos(phi), math.sin(phi))
+    inv = zeta.conjugate()
+    p = inv
+    s = 0j
+    h = 0j
+    for n in range(a.shape[0]):
+        term = a[n] * p
+        s += term
+        h += (n + 1) * term
+        p *= inv
+    e = cmath.exp(a0 + s)
+    g = zeta * e
+    gm1 = g - 1.0
+    gp1 = g + 1.0
+    r = _powk(gm1 / gp1, k)
+    inv_1mr = 1.0 / (1.0 - r)
+    z = k * (1.0 + r) * inv_1mr
+    dz = 4.0 * k * k * r * inv_1mr * inv_1mr / (gm1 * gp1) * (e * (1.0 - h))
+    return zeta, z, dz
+
+
+@njit(cache=True)
+def _point_at_x(a, a0, k, z_le, scale, phi, lo, hi, xt, sign):
     """The exact contour point at chord station xt on the surface arc [lo, hi] of the circle,
-    where the chord-frame x is monotone: Newton's method from φ, kept inside a bracket that it
-    narrows (a bisection step where Newton would leave it).  Returns (x + iy, φ, converged):
-    converged when the step fell below 1e-15 rad or x matches xt to 1e-14."""
+    where the chord-frame x is monotone (sign −1: falling with φ, the upper surface; +1:
+    rising, the lower one): Newton's method from φ, kept inside a bracket that it narrows (a
+    bisection step where Newton would leave it).  Returns (x + iy, φ, converged): converged
+    when x matches xt to 1e-14 or the step fell below 1e-15 rad."""
     phi = min(max(phi, lo), hi)
-    flo = ((map_point(a, a0, k, lo)[3] - z_le) * scale).real - xt
     for _ in range(60):
-        g, e, h, z, dz, q2 = map_point(a, a0, k, phi)
+        zeta, z, dz = _z_dz(a, a0, k, phi)
         zc = (z - z_le) * scale
         f = zc.real - xt
         if abs(f) <= 1e-14:
             return zc, phi, True
-        if (f > 0.0) == (flo > 0.0):
-            lo = phi
-            flo = f
-        else:
+        if f * sign > 0.0:
             hi = phi
-        zeta = complex(math.cos(phi), math.sin(phi))
+        else:
+            lo = phi
         dxdphi = (1j * zeta * dz * scale).real
         nxt = phi - f / dxdphi
         if not (lo < nxt < hi) or not math.isfinite(nxt):
@@ -1082,8 +1104,39 @@ def _point_at_x(a, a0, k, z_le, scale, phi, lo, hi, xt):
         if abs(nxt - phi) <= 1e-15:
             return zc, phi, True
         phi = nxt
-    zc = (map_point(a, a0, k, phi)[3] - z_le) * scale
+    zc = (_z_dz(a, a0, k, phi)[1] - z_le) * scale
     return zc, phi, abs(zc.real - xt) <= 1e-12
+
+
+@njit(cache=True)
+def _start_phi(key, kv, pv, dv, k):
+    """The circle angle at a contour key, interpolated between samples: the cubic Hermite
+    interpolant from the samples' dφ/dkey where both are finite; next to the trailing edge,
+    where 1 − x grows as ψᵏ with the distance ψ from it, the power law through the nearest
+    sample; at the leading edge linearly."""
+    n = kv.shape[0]
+    if key <= kv[0]:
+        return pv[0]
+    if key >= kv[n - 1]:
+        return pv[n - 1]
+    j = np.searchsorted(kv, key)
+    if j == 1 or j == n - 1:  # between the trailing edge and its nearest sample
+        js = 1 if j == 1 else n - 2
+        ds = 1.0 - abs(kv[js])
+        if ds > 0.0:
+            psi = abs(pv[js] - pv[0 if j == 1 else n - 1]) * ((1.0 - abs(key)) / ds) ** (1.0 / k)
+            return psi if j == 1 else _TWO_PI - psi
+    x0 = kv[j - 1]
+    hh = kv[j] - x0
+    t = (key - x0) / hh
+    d0 = dv[j - 1]
+    d1 = dv[j]
+    if not (math.isfinite(d0) and math.isfinite(d1)) or hh <= 0.0:
+        return pv[j - 1] + (pv[j] - pv[j - 1]) * t
+    t2 = t * t
+    t3 = t2 * t
+    return ((2 * t3 - 3 * t2 + 1) * pv[j - 1] + (t3 - 2 * t2 + t) * hh * d0
+            + (-2 * t3 + 3 * t2) * pv[j] + (t3 - t2) * hh * d1)
 
 
 @njit(cache=True)
@@ -1146,20 +1199,43 @@ def _span_curvature(p0, p1, cbs, dzs, q2s, oks, zmins, kzs, scale_abs, scale_arg
 
 
 @njit(cache=True)
-def _floor_check(a, a0, k, consts, z_le, scale, kv, pv, phi_le, t0, xst, fs, free, grid,
-                 cbs):
+def _sampled_y(key, kv, yv, pv, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg):
+    """The surface ordinate at a contour key from the samples on either side of it, and a
+    bound of the interpolation's error: (y, e, φ low, φ high), with |y_true − y| ≤ e =
+    C (key − k₀)(k₁ − key)/2, C the curvature bound of the grid arcs between the two samples
+    (:func:`_span_curvature`), and the point's circle angle inside [φ low, φ high]."""
+    j = np.searchsorted(kv, key)
+    if j < 1 or j >= kv.shape[0]:
+        return 0.0, _INF, 0.0, _TWO_PI
+    k0 = kv[j - 1]
+    k1 = kv[j]
+    if not k1 > k0:
+        return 0.0, _INF, 0.0, _TWO_PI
+    y = yv[j - 1] + (yv[j] - yv[j - 1]) * (key - k0) / (k1 - k0)
+    c = _span_curvature(pv[j - 1], pv[j], cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+    return y, 0.5 * c * (key - k0) * (k1 - key), pv[j - 1], pv[j]
+
+
+@njit(cache=True)
+def _floor_check(a, a0, k, consts, z_le, scale, kv, yv, pv, dv, phi_le, t0, xst, fs, free,
+                 grid, cbs):
     """The local-thickness floor: exact at the stations ``xst``, certified between them.
 
-    At each station the thickness y_u − y_l is computed at exact contour points; below zero is
-    a crossing (V_CROSSED), below the floor V_THIN.  Between two stations h apart,
-    t ≥ min(t₀, t₁) − C h²/8 with C bounding |t''| (:func:`_graph_curvature` on each
-    surface's arc between the two stations' circle angles); where that does not show
-    t ≥ FLOOR_BETWEEN × floor the interval is halved at an exact midpoint, whose thickness is
-    a witness if it falls below (V_THIN, V_CROSSED).  V_UNCERTIFIED when the budget or the
-    stack runs out.  Needs single-valued surfaces (:func:`_validity_fold` first).
+    At each station the thickness y_u − y_l is first bounded from below by the samples on
+    either side (:func:`_sampled_y`); where that bound clears the floor by a tenth of t₀ the
+    station passes on it, and elsewhere the thickness is computed at exact contour points:
+    below zero is a crossing (V_CROSSED), below the floor V_THIN, so the verdict at every
+    station is that of the exact thickness.  Between two stations h apart,
+    t ≥ min(t₀, t₁) − C h²/8 with C bounding |t''| (:func:`_span_curvature`, then
+    :func:`_graph_curvature`, on each surface's arc between the two stations); where that does
+    not show t ≥ FLOOR_BETWEEN × floor the interval is halved at an exact midpoint, whose
+    thickness is a witness if it falls below (V_THIN, V_CROSSED).  V_UNCERTIFIED when the
+    budget or the stack runs out.  Needs single-valued surfaces (:func:`_validity_fold` first).
 
-    Returns (code, margin): margin = the least (thickness − floor) over the stations, chords.
-    ``free`` receives the circle ranges of the two surfaces over [FLOOR_START, FLOOR_END].
+    Returns (code, margin): margin = the least (thickness − floor) over the first
+    FLOOR_STATIONS stations, chords: exact wherever it is below a tenth of t₀, a lower bound
+    above that.  ``free`` receives circle ranges of the two surfaces inside the stretch the
+    stations span.
     """
     ns = xst.shape[0]
     cap = fs.shape[1]
@@ -1169,69 +1245,70 @@ def _floor_check(a, a0, k, consts, z_le, scale, kv, pv, phi_le, t0, xst, fs, fre
     cbs[:] = math.nan
     margin = _INF
     top = 0
-    pu_prev = 0.0
-    pl_prev = 0.0
-    tp = 0.0
+    ulo_p = uhi_p = llo_p = lhi_p = tp = 0.0
     for i in range(ns):
         x = xst[i]
-        gu = _interp(-x, kv, pv)
-        gl = _interp(x, kv, pv)
-        zu, pu, oku = _point_at_x(a, a0, k, z_le, scale, gu, 1e-12, phi_le, x)
-        zl, pl, okl = _point_at_x(a, a0, k, z_le, scale, gl, phi_le, _TWO_PI - 1e-12, x)
-        if not (oku and okl):
-            return V_UNCERTIFIED, margin
-        t = zu.imag - zl.imag
-        if t < 0.0:
-            return V_CROSSED, t - floor_at(x, t0)
         fx = floor_at(x, t0)
-        if t < fx:
-            return V_THIN, t - fx
+        yu, eu, ulo, uhi = _sampled_y(-x, kv, yv, pv, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+        yl, el, llo, lhi = _sampled_y(x, kv, yv, pv, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+        t = (yu - eu) - (yl + el)  # a lower bound of the thickness
+        if not (t - fx > 0.1 * t0 + 1e-12):
+            gu = _start_phi(-x, kv, pv, dv, k)
+            gl = _start_phi(x, kv, pv, dv, k)
+            zu, pu, oku = _point_at_x(a, a0, k, z_le, scale, gu, 1e-12, phi_le, x, -1.0)
+            zl, pl, okl = _point_at_x(a, a0, k, z_le, scale, gl, phi_le, _TWO_PI - 1e-12, x,
+                                      1.0)
+            if not (oku and okl):
+                return V_UNCERTIFIED, margin
+            t = zu.imag - zl.imag
+            if t < 0.0:
+                return V_CROSSED, t - fx
+            if t < fx:
+                return V_THIN, t - fx
+            ulo = uhi = pu
+            llo = lhi = pl
         if i < FLOOR_STATIONS:
             margin = min(margin, t - fx)
         if i == 0:
-            free[1] = pu
-            free[2] = pl
+            free[1] = ulo  # the upper surface falls in x as φ grows: beyond ulo, x > x₀
+            free[2] = lhi
         else:
             fs[0, top] = xst[i - 1]
             fs[1, top] = x
             fs[2, top] = tp
             fs[3, top] = t
-            fs[4, top] = pu_prev
-            fs[5, top] = pu
-            fs[6, top] = pl_prev
-            fs[7, top] = pl
+            fs[4, top] = ulo
+            fs[5, top] = uhi_p
+            fs[6, top] = llo_p
+            fs[7, top] = lhi
             top += 1
-        pu_prev = pu
-        pl_prev = pl
-        tp = t
-    free[0] = pu_prev
-    free[3] = pl_prev
+        ulo_p, uhi_p, llo_p, lhi_p, tp = ulo, uhi, llo, lhi, t
+    free[0] = uhi_p
+    free[3] = llo_p
     spent = 0
     while top > 0:
         top -= 1
         x0, x1, t0_, t1_ = fs[0, top], fs[1, top], fs[2, top], fs[3, top]
-        pu0, pu1, pl0, pl1 = fs[4, top], fs[5, top], fs[6, top], fs[7, top]
+        ulo, uhi, llo, lhi = fs[4, top], fs[5, top], fs[6, top], fs[7, top]
         need = FLOOR_BETWEEN * max(floor_at(x0, t0), floor_at(x1, t0))
         hh = x1 - x0
         room = min(t0_, t1_) - need - 1e-12  # what the curvature term may take
         if room > 0.0:
             # the grid arcs' bounds first (no new map evaluation), then the arcs themselves
-            cu = _span_curvature(pu0, pu1, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
-            cl = _span_curvature(pl0, pl1, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+            cu = _span_curvature(ulo, uhi, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
+            cl = _span_curvature(llo, lhi, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
             if (cu + cl) * hh * hh * 0.125 <= room:
                 continue
-            cu = _graph_curvature(a, a0, k, consts, z_le, scale, pu0, pu1)
-            cl = _graph_curvature(a, a0, k, consts, z_le, scale, pl0, pl1)
+            cu = _graph_curvature(a, a0, k, consts, z_le, scale, ulo, uhi)
+            cl = _graph_curvature(a, a0, k, consts, z_le, scale, llo, lhi)
             if (cu + cl) * hh * hh * 0.125 <= room:
                 continue
         spent += 1
         if spent > _FLOOR_BUDGET or top + 2 > cap:
             return V_UNCERTIFIED, margin
         xm = 0.5 * (x0 + x1)
-        zu, pum, oku = _point_at_x(a, a0, k, z_le, scale, 0.5 * (pu0 + pu1), min(pu0, pu1),
-                                   max(pu0, pu1), xm)
-        zl, plm, okl = _point_at_x(a, a0, k, z_le, scale, 0.5 * (pl0 + pl1), min(pl0, pl1),
-                                   max(pl0, pl1), xm)
+        zu, pum, oku = _point_at_x(a, a0, k, z_le, scale, 0.5 * (ulo + uhi), ulo, uhi, xm, -1.0)
+        zl, plm, okl = _point_at_x(a, a0, k, z_le, scale, 0.5 * (llo + lhi), llo, lhi, xm, 1.0)
         if not (oku and okl):
             return V_UNCERTIFIED, margin
         tm = zu.imag - zl.imag
@@ -1239,15 +1316,16 @@ def _floor_check(a, a0, k, consts, z_le, scale, kv, pv, phi_le, t0, xst, fs, fre
             return V_CROSSED, margin
         if tm < FLOOR_BETWEEN * floor_at(xm, t0):
             return V_THIN, margin
+        # [x0, xm]: upper φ in [φm, uhi], lower in [llo, φm]; [xm, x1]: the rest
         for side in range(2):
             fs[0, top] = x0 if side == 0 else xm
             fs[1, top] = xm if side == 0 else x1
             fs[2, top] = t0_ if side == 0 else tm
             fs[3, top] = tm if side == 0 else t1_
-            fs[4, top] = pu0 if side == 0 else pum
-            fs[5, top] = pum if side == 0 else pu1
-            fs[6, top] = pl0 if side == 0 else plm
-            fs[7, top] = plm if side == 0 else pl1
+            fs[4, top] = pum if side == 0 else ulo
+            fs[5, top] = uhi if side == 0 else pum
+            fs[6, top] = llo if side == 0 else plm
+            fs[7, top] = plm if side == 0 else lhi
             top += 1
     return V_OK, margin
 
@@ -1260,24 +1338,25 @@ def _crossing_witness(a, a0, k, z_le, scale, kv, yv, pv, phi_le, xs):
         x = xs[i]
         if _interp(-x, kv, yv) - _interp(x, kv, yv) < 0.0:
             zu, _, oku = _point_at_x(a, a0, k, z_le, scale, _interp(-x, kv, pv), 1e-12, phi_le,
-                                     x)
+                                     x, -1.0)
             zl, _, okl = _point_at_x(a, a0, k, z_le, scale, _interp(x, kv, pv), phi_le,
-                                     _TWO_PI - 1e-12, x)
+                                     _TWO_PI - 1e-12, x, 1.0)
             if oku and okl and zu.imag - zl.imag < 0.0:
                 return True
     return False
 
 
 @njit(cache=True)
-def _contour_keys(phis, zs, phi_le, z_le, scale, keys, yk, pk):
+def _contour_keys(phis, zs, dzs, phi_le, z_le, scale, keys, yk, pk, dk):
     """The contour in the chord frame laid along one increasing key, −x on the upper surface
-    and +x on the lower, with its y and circle angle (for interpolated starting points).
-    Returns the number of keys."""
+    and +x on the lower, with its y, circle angle and dφ/dkey (NaN at the edges and the
+    leading edge), for interpolated starting points.  Returns the number of keys."""
     p = phis.shape[0]
     n = 0
     keys[n] = -1.0
     yk[n] = 0.0
     pk[n] = 0.0
+    dk[n] = math.nan
     n += 1
     jle = p
     for j in range(p):
@@ -1288,20 +1367,24 @@ def _contour_keys(phis, zs, phi_le, z_le, scale, keys, yk, pk):
         keys[n] = -zc.real
         yk[n] = zc.imag
         pk[n] = phis[j]
+        dk[n] = -1.0 / (1j * complex(math.cos(phis[j]), math.sin(phis[j])) * dzs[j] * scale).real
         n += 1
     keys[n] = 0.0
     yk[n] = 0.0
     pk[n] = phi_le
+    dk[n] = math.nan
     n += 1
     for j in range(jle, p):
         zc = (zs[j] - z_le) * scale
         keys[n] = zc.real
         yk[n] = zc.imag
         pk[n] = phis[j]
+        dk[n] = 1.0 / (1j * complex(math.cos(phis[j]), math.sin(phis[j])) * dzs[j] * scale).real
         n += 1
     keys[n] = 1.0
     yk[n] = 0.0
     pk[n] = _TWO_PI
+    dk[n] = math.nan
     return n + 1
 
 
@@ -1330,15 +1413,16 @@ def _certify(a, a0, k, consts, phis, gs, es, hs, zs, dzs, q2s, oks, zmins, kzs, 
                           math.atan2(scale.imag, scale.real), sc, sd, ste)
     if code != V_OK:
         return code, math.nan, 0j, math.nan, 0
-    nk = _contour_keys(phis, zs, phi_le, z_le, scale, keys, yk, pk)
+    dk = np.empty(keys.shape[0])
+    nk = _contour_keys(phis, zs, dzs, phi_le, z_le, scale, keys, yk, pk, dk)
     kv = keys[:nk]
     yv = yk[:nk]
     pv = pk[:nk]
     if _crossing_witness(a, a0, k, z_le, scale, kv, yv, pv, phi_le, xs):
         return V_CROSSED, math.nan, 0j, math.nan, 0
     free = np.array([1.0, 0.0, 1.0, 0.0])
-    code, fmargin = _floor_check(a, a0, k, consts, z_le, scale, kv, pv, phi_le, t0, xst, fs,
-                                 free, (dzs, q2s, oks, zmins, kzs), cbs)
+    code, fmargin = _floor_check(a, a0, k, consts, z_le, scale, kv, yv, pv, dk[:nk], phi_le,
+                                 t0, xst, fs, free, (dzs, q2s, oks, zmins, kzs), cbs)
     if code != V_OK:
         return code, math.nan, 0j, math.nan, 0
     if t0 <= 0.0:
