@@ -62,21 +62,24 @@ def damage_lines(st: dict) -> list[str]:
 LE_RADIUS_FLOOR = 0.002
 
 
+def _run_bests(folder: StudyFolder):
+    """(run id, best feasible design) for every logged run that has one."""
+    for r, log in folder.logged_runs():
+        b = log.best()
+        if b is not None:
+            yield r.run_id, folder.design(r.run_id, b["index"], log)
+
+
 def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
     """One warning line per run whose best feasible design has a leading-edge radius below
     ``floor`` (chords), naming the study key that prevents it."""
     from foilmap.section.geometry import leading_edge_radius
 
-    folder = StudyFolder(out)
     lines = []
-    for r, log in folder.logged_runs():
-        b = log.best()
-        if b is None:
-            continue
-        d = folder.design(r.run_id, b["index"], log)
+    for run_id, d in _run_bests(StudyFolder(out)):
         radius = float(leading_edge_radius(d.section)[0])  # a logged feasible design: valid
         if radius < floor:
-            lines.append(f"warning: the best design of run {r.run_id} has a leading-edge radius "
+            lines.append(f"warning: the best design of run {run_id} has a leading-edge radius "
                          f"of {radius:.2g} c, below the practical floor of about {floor:g} c; "
                          f"set constraints.min_le_radius in the study to keep the search away "
                          f"from needle noses")
@@ -98,14 +101,10 @@ def floor_warnings(out: Path) -> list[str]:
     if t0 <= 0.0:
         return []
     lines = []
-    for r, log in folder.logged_runs():
-        b = log.best()
-        if b is None:
-            continue
-        d = folder.design(r.run_id, b["index"], log)
+    for run_id, d in _run_bests(folder):
         margin, x = (float(v[0]) for v in floor_clearance(d.section, t0))
         if margin < ON_FLOOR * t0:
-            lines.append(f"warning: the best design of run {r.run_id} sits on the local-thickness "
+            lines.append(f"warning: the best design of run {run_id} sits on the local-thickness "
                          f"floor (at x/c {x:.3f} it is {margin:.2g} c above the floor of "
                          f"constraints.min_local_thickness = {t0:g} c): the search thinned it "
                          f"until the floor held it; give constraints.station_thickness where "
