@@ -160,6 +160,8 @@ def test_a_log_ahead_of_its_checkpoint_resumes_from_the_checkpoint(tmp_path, mon
     assert len(calls) == total - 3
     logs_equal(ref, log_path)
     assert read_run(log_path).resumes == 2
+    with h5py.File(log_path, "r") as f:  # a reopened log keeps the documented one-byte state
+        assert f["meta/state"].dtype == np.int8 and f["meta/state"][0] == 1
 
 
 def test_different_seeds_differ(tmp_path):

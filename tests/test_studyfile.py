@@ -79,3 +79,19 @@ def test_a_bad_start_file_is_one_line_naming_it(tmp_path):
     with pytest.raises(InputError) as err:
         parse_study(text, "s.toml", base_dir=str(tmp_path))
     assert "bad.toml" in str(err.value) and "\n" not in str(err.value)
+
+
+def test_a_variants_own_start_file_is_read(tmp_path):
+    (tmp_path / "start.toml").write_text(SECTION_TEXT)
+    text = small_study("v", [1], 100) + (
+        '[[variant]]\nname = "fromfile"\nshape = { coefficients = 3, start = "start.toml" }\n'
+        '[[variant]]\nname = "plain"\n')
+    st = parse_study(text, "s.toml", base_dir=str(tmp_path))
+    shapes = {r.variant: r.shape for r in st.runs()}
+    np.testing.assert_array_equal(shapes["fromfile"]["start_pairs"],
+                                  [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]])
+    assert shapes["fromfile"]["start_te_angle_deg"] == 10.0
+    assert "start_pairs" not in shapes["plain"]
+    with pytest.raises(InputError, match=r"variant\[1\]\.shape\.start = 'nope.toml'"):
+        parse_study(text.replace('"start.toml"', '"nope.toml"'), "s.toml",
+                    base_dir=str(tmp_path))
