@@ -78,13 +78,15 @@ def test_a_second_run_on_a_busy_folder_stops_at_once_in_one_line(tmp_path):
         proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "resume", str(out),
                                  "--wait"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                                 text=True)
-        time.sleep(1.5)
-        assert proc.poll() is None, proc.communicate()
+        first = proc.stderr.readline()  # it says once that it waits, naming the holder
+        assert "waiting for it" in first and f"pid {os.getpid()}" in first, first
+        time.sleep(0.5)
+        assert proc.poll() is None  # still waiting
     finally:
         holder.release()
     out_text, err = proc.communicate(timeout=120)
     assert proc.returncode == 0, err
-    assert "waiting for it" in err and "0 runs finished now" in out_text
+    assert "0 runs finished now" in out_text
 
 
 def test_a_run_held_elsewhere_is_refused_after_a_short_wait(tmp_path, monkeypatch):

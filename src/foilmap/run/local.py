@@ -214,7 +214,8 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
                     s = backend.result(fut)
                 except BrokenProcessPool:  # a worker was killed: the pool stops them all
                     s = {"run": r.run_id, "state": RunState.INTERRUPTED.value,
-                         "error": "a worker process of the study was killed; foilmap resume "
+                         "error": "a worker process of the study ended abruptly (killed, or "
+                                  f"crashed){_full_disk(folder.path)}; foilmap resume "
                                   "continues the run from its last commit"}
                 except Exception as exc:  # the worker process itself died, too often
                     s = {"run": r.run_id, "state": RunState.FAILED.value,
@@ -256,6 +257,19 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
             progress.close()
     folder.write_index(states)
     return summaries
+
+
+def _full_disk(path) -> str:
+    """``", with no space left on device (N KB free)"`` when the folder's disk is (nearly) full:
+    HDF5 can crash a process whose write failed for want of space."""
+    try:
+        st = os.statvfs(path)
+    except OSError:
+        return ""
+    free = st.f_bavail * st.f_frsize
+    if free < max(1 << 20, 0.001 * st.f_blocks * st.f_frsize):
+        return f", with no space left on device ({free // 1024} KB free)"
+    return ""
 
 
 def _say(progress, line: str) -> None:

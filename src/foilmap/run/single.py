@@ -99,8 +99,10 @@ def recover(log_path: Path, ckpt_path: Path, run_id: str):
         return None, 0, None, (None if g == 0 else _seed_note(
             run_id, f"log {log_path.name} is missing (checkpoint at generation {g})", None))
     why = None
-    if info.get("run") != run_id or getattr(state, "generation", None) != g:
-        why = f"checkpoint {ckpt_path.name} belongs to {info.get('run')!r}"
+    if info.get("run") != run_id:
+        why = f"checkpoint {ckpt_path.name} belongs to run {info.get('run')!r}"
+    elif getattr(state, "generation", None) != g:
+        why = f"checkpoint {ckpt_path.name} holds another generation than its header"
     elif log.generations < g:
         why = (f"checkpoint at generation {g} but the log holds only {log.generations} "
                "readable generations")
