@@ -19,7 +19,8 @@ from foilmap.section.status import Status
 
 T0 = 0.005  # the default floor, chords (docs/study-file.md)
 
-#: the best design of a search with the floor on: it sits on the floor near x/c 0.93
+#: the best design of a search with the floor on: it sits on the floor near x/c 0.93 (found
+#: with 41 floor stations; with the 25 of today it clears the one at 0.935 by 7e-5 c)
 ON_FLOOR = SectionSet(np.array([[-0.04642932261734864 + 0.05362564388942115j,
                                  -0.009893183866954028 + 0.01617260370735679j,
                                  -0.011266603178053485 + 0.032568613345477664j,
@@ -90,6 +91,7 @@ def test_floor_rule_and_stations():
         assert np.min(np.abs(design - corner)) < 1e-15
     np.testing.assert_allclose(1.0 - st[C.FLOOR_STATIONS:],
                                (1.0 - C.FLOOR_END) * 0.5 ** np.arange(1, C.FLOOR_TAIL + 1))
+    assert 1.0 - st[-1] < 1e-5  # the tail reaches where the edge's own expansion takes over
 
 
 def test_floor_margin_is_exact_at_the_stations():
@@ -111,10 +113,10 @@ def test_floor_margin_is_exact_at_the_stations():
         assert np.all(margin[ok & ~close] >= 0.1 * t0)
         assert np.all(np.isnan(margin[~ok]))
     assert np.sum(_validity(near, T0)[1] < 0.1 * T0) >= 10  # the exact branch was exercised
-    # the design near the floor: within a hundred-thousandth of a chord, near x/c 0.93
+    # the design near the floor: within a ten-thousandth of a chord, at the station x/c 0.935
     st, m = _validity(ON_FLOOR, T0)
-    assert st[0] == Status.OK and 0.0 < m[0] < 2e-5
-    assert floor_clearance(ON_FLOOR, T0)[1][0] == pytest.approx(0.9286, abs=1e-3)
+    assert st[0] == Status.OK and 0.0 < m[0] < 1e-4
+    assert floor_clearance(ON_FLOOR, T0)[1][0] == pytest.approx(0.935, abs=1e-12)
     # no floor: no margin figure, the same section valid
     st0, m0 = _validity(ON_FLOOR, 0.0)
     assert st0[0] == Status.OK and np.isnan(m0[0])

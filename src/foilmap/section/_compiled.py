@@ -54,15 +54,16 @@ V_UNCERTIFIED = 10  # Status.UNCERTIFIED: a certificate ran out of budget or sta
 #: FLOOR_NOSE ≤ x/c ≤ FLOOR_TAPER, rising linearly from 0 at the leading edge to t₀ at
 #: FLOOR_NOSE, falling as ((1 − x)/(1 − FLOOR_TAPER))² into the trailing-edge wedge.  It holds
 #: exactly at FLOOR_STATIONS stations on FLOOR_START ≤ x/c ≤ FLOOR_END (whose least clearance
-#: is the figure ``floor_margin``) and at FLOOR_TAIL more stations that halve the distance to
-#: the trailing edge each, and between all of them it is certified to hold at least
-#: FLOOR_BETWEEN times (with no floor: the thickness certified positive there)
+#: is the figure ``floor_margin``) and at FLOOR_TAIL more stations that each take the distance
+#: to the trailing edge down by FLOOR_TAIL_RATIO, and between all of them it is certified to
+#: hold at least FLOOR_BETWEEN times (with no floor: the thickness certified positive there)
 FLOOR_START = 0.005
 FLOOR_NOSE = 0.05
 FLOOR_TAPER = 0.8
 FLOOR_END = 0.98
-FLOOR_STATIONS = 41
+FLOOR_STATIONS = 25
 FLOOR_TAIL = 12
+FLOOR_TAIL_RATIO = 0.5
 FLOOR_BETWEEN = 0.5
 #: most interval splits the floor certificate may spend before it gives up
 _FLOOR_BUDGET = 4000
@@ -1036,8 +1037,8 @@ def floor_at(x, t0):
 def floor_stations():
     """The floor's exact stations: FLOOR_STATIONS on [FLOOR_START, FLOOR_END], the floor's
     corners among them (equal steps on the nose ramp, the full floor and the taper, as many per
-    piece as its length asks), then FLOOR_TAIL toward the trailing edge, 1 − x halving at
-    each."""
+    piece as its length asks), then FLOOR_TAIL toward the trailing edge, 1 − x falling by
+    FLOOR_TAIL_RATIO at each."""
     pieces = np.array([FLOOR_START, FLOOR_NOSE, FLOOR_TAPER, FLOOR_END])
     total = FLOOR_END - FLOOR_START
     out = np.empty(FLOOR_STATIONS + FLOOR_TAIL)
@@ -1051,7 +1052,7 @@ def floor_stations():
             n += 1
     out[n] = FLOOR_END
     for j in range(FLOOR_TAIL):
-        out[n + 1 + j] = 1.0 - (1.0 - FLOOR_END) * 0.5 ** (j + 1)
+        out[n + 1 + j] = 1.0 - (1.0 - FLOOR_END) * FLOOR_TAIL_RATIO ** (j + 1)
     return out
 
 
@@ -1165,17 +1166,19 @@ def _graph_curvature(a, a0, k, consts, z_le, scale, p0, p1):
 @njit(cache=True)
 def _grid_curvature(j, d, dzs, q2s, oks, zmins, kzs, scale_abs, scale_arg):
     """:func:`_graph_curvature` over grid arc j (half-width d) from the grid's own bounds (no
-    new map evaluation)."""
+    new map evaluation); ``scale_arg`` is the unit complex number of the frame's rotation."""
     if not oks[j]:
         return _INF
     kt = abs(1.0 + q2s[j]) + kzs[j] * d
     c = (j + 0.5) * 2.0 * d
-    tang = 1j * complex(math.cos(c), math.sin(c)) * dzs[j]
-    theta = math.atan2(tang.imag, tang.real) + scale_arg
-    dev = min(_arg_dist(theta, 0.0), _arg_dist(theta, math.pi)) + kt * d
-    if dev >= 1.5:
+    tang = 1j * complex(math.cos(c), math.sin(c)) * dzs[j] * scale_arg
+    at = abs(tang)
+    # cos of the tangent's angle to the chord at the centre, then at most u = K δ further:
+    # cos(θ + u) ≥ cos θ (1 − u²/2) − sin θ u (no transcendental function)
+    u = kt * d
+    cm = abs(tang.real) / at * (1.0 - 0.5 * u * u) - abs(tang.imag) / at * u
+    if not cm > 0.07:  # cos θ not bounded away from 0 (θ beyond about 1.5)
         return _INF
-    cm = math.cos(dev)
     return kt / (zmins[j] * scale_abs * cm * cm * cm)
 
 
@@ -1241,7 +1244,7 @@ def _floor_check(a, a0, k, consts, z_le, scale, kv, yv, pv, dv, phi_le, t0, xst,
     cap = fs.shape[1]
     dzs, q2s, oks, zmins, kzs = grid
     sabs = abs(scale)
-    sarg = math.atan2(scale.imag, scale.real)
+    sarg = scale / sabs  # the frame's rotation
     cbs[:] = math.nan
     margin = _INF
     top = 0
@@ -1252,7 +1255,9 @@ def _floor_check(a, a0, k, consts, z_le, scale, kv, yv, pv, dv, phi_le, t0, xst,
         yu, eu, ulo, uhi = _sampled_y(-x, kv, yv, pv, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
         yl, el, llo, lhi = _sampled_y(x, kv, yv, pv, cbs, dzs, q2s, oks, zmins, kzs, sabs, sarg)
         t = (yu - eu) - (yl + el)  # a lower bound of the thickness
-        if not (t - fx > 0.1 * t0 + 1e-12):
+        # a design station passes on the bound a tenth of t₀ clear (so that the margin figure
+        # is exact near the floor), a tail station on any clearance
+        if not (t - fx > (0.1 * t0 if i < FLOOR_STATIONS else 0.0) + 1e-12):
             gu = _start_phi(-x, kv, pv, dv, k)
             gl = _start_phi(x, kv, pv, dv, k)
             zu, pu, oku = _point_at_x(a, a0, k, z_le, scale, gu, 1e-12, phi_le, x, -1.0)
