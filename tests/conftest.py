@@ -12,7 +12,13 @@ ROOT = Path(__file__).resolve().parents[1]
 # the panel method lives in benchmarks/ (the peer of the conformal kernel, not in the package)
 sys.path.insert(0, str(ROOT / "benchmarks"))
 
+import os  # noqa: E402
 import subprocess  # noqa: E402
+import tempfile  # noqa: E402
+
+# checkpoints are signed with a key from the user's configuration: the tests, and every command
+# they start, use a key of their own, never the real one in the home folder
+os.environ["FOILMAP_CONFIG_DIR"] = tempfile.mkdtemp(prefix="foilmap-test-config-")
 
 from foilmap import SectionSet, offset_circle_coefficients  # noqa: E402
 
