@@ -81,7 +81,8 @@ def test_the_search_refuses_sections_below_the_floor(on_the_floor):
     assert "uncertified" not in rejected  # none gave up on this study
     text = format_status(st)
     share = rejected["below_floor"] / st["runs"][0]["evaluations"]
-    assert f"{share:.1%} of evaluations below the local-thickness floor" in text
+    assert (f"{rejected['below_floor']} evaluations ({share:.2%}) below the local-thickness "
+            "floor") in text
 
 
 def test_best_and_status_warn_when_the_best_design_sits_on_the_floor(on_the_floor, capsys):

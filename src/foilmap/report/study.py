@@ -43,8 +43,8 @@ def format_status(st: dict) -> str:
                          "unproven (a certificate gave up: uncertified)")
         if rej.get("below_floor"):
             share = rej["below_floor"] / max(r["evaluations"], 1)
-            notes.append(f"run {r['run']}: {share:.1%} of evaluations below the local-thickness "
-                         "floor")
+            notes.append(f"run {r['run']}: {plural(rej['below_floor'], 'evaluation')} "
+                         f"({share:.2%}) below the local-thickness floor")
     if notes:
         lines += [""] + notes
     lines += damage_lines(st)
