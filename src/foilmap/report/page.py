@@ -127,7 +127,8 @@ def _runs(st: dict) -> str:
         n = max(r["evaluations"], 1)
         rows.append([r["run"], _Raw(f'<span class="{cls}">{html.escape(state)}</span>'),
                      r["generations"], r["evaluations"], best,
-                     f"{rej.get('below_floor', 0) / n:.1%}", rej.get("uncertified", 0),
+                     f"{rej.get('below_floor', 0)} ({rej.get('below_floor', 0) / n:.2%})",
+                     rej.get("uncertified", 0),
                      _num(r["elapsed_s"], 1)])
     rate = st.get("evaluations_per_s")
     head = (f"<h3>Runs</h3><p>{plural(len(st['runs']), 'run')}: " + ", ".join(
