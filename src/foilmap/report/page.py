@@ -264,7 +264,7 @@ def _study_section(folder: StudyFolder) -> str:
         if unproven:
             warnings.append(f"run {r['run']}: {plural(unproven, 'evaluation')} rejected unproven "
                             "(a certificate gave up before proving the section valid or not)")
-    warnings += floor_warnings(folder.path)
+    warnings += [w.removeprefix("warning: ") for w in floor_warnings(folder.path)]
     designs, dw = _designs(folder)
     warnings += dw
     parts.append(designs)
