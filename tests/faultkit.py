@@ -66,12 +66,15 @@ def generations(log: Path) -> int:
 
 
 def wait_running(out: Path, proc, run_ids, timeout: float = 120.0) -> bool:
-    """Wait until one of the runs has logged a generation; False when the driver ended first."""
+    """Wait until one of the runs has logged a generation since this call (so that a resumed
+    folder's old generations do not count: the driver may still be importing); False when
+    the driver ended first."""
+    base = {r: generations(out / "runs" / f"{r}.h5") for r in run_ids}
     t0 = time.monotonic()
     while time.monotonic() - t0 < timeout:
         if proc.poll() is not None:
             return False
-        if any(generations(out / "runs" / f"{r}.h5") > 0 for r in run_ids):
+        if any(generations(out / "runs" / f"{r}.h5") > base[r] for r in run_ids):
             return True
         time.sleep(0.05)
     raise AssertionError("no run made progress")

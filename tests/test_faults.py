@@ -144,7 +144,9 @@ def kill_loop(kind: str, tries: int, sf: Path, ref: Path, out: Path, seed: int) 
     if fig["orphan_exit_s"]:
         # a worker whose driver is gone commits and stops within a second (slack for a busy
         # machine); so does the resume that started at once: its workers waited for the lock
-        assert max(fig["orphan_exit_s"]) < 2.0, fig["orphan_exit_s"]
+        # within a second on an idle machine (0.60 s at worst over 20 tries); the slack covers
+        # a worker whose generation runs beside another test on a 2-core machine
+        assert max(fig["orphan_exit_s"]) < 4.0, fig["orphan_exit_s"]
     return fig
 
 
