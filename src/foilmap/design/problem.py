@@ -36,6 +36,9 @@ class Outcome:
     constraints: np.ndarray  # (B, C) g ≤ 0 feasible
     status: np.ndarray  # (B,) int8
     feasible: np.ndarray  # (B,) bool: valid and every g ≤ 0
+    #: the figures the objectives and constraints came from (a family's fairness reads them)
+    evaluation: Evaluation | None = None
+    peak: np.ndarray | None = None  # (B,) the largest peak suction over the point's Cls
 
 
 @dataclass(frozen=True)
@@ -169,7 +172,10 @@ class Problem:
 
     def evaluate(self, y: np.ndarray) -> Outcome:
         """Objectives and constraints of the search vectors ``y`` (B, D)."""
-        sec = self.param.sections(y)
+        return self.evaluate_sections(self.param.sections(y))
+
+    def evaluate_sections(self, sec) -> Outcome:
+        """Objectives and constraints of a batch of sections (a ``SectionSet``)."""
         if {"profile_drag", "target_cp_rms"} & set(self.objective_names):
             ev, peak, st, extra = self._evaluate_reference(sec)
         else:
@@ -197,7 +203,7 @@ class Problem:
         obj[~ok] = np.nan
         f, g = self.penalise(f, g, ok)
         feasible = ok & (np.all(g <= 0.0, axis=1) if g.shape[1] else True)
-        return Outcome(f, obj, g, status, feasible)
+        return Outcome(f, obj, g, status, feasible, ev, peak)
 
     def _objective(self, name: str, ev: Evaluation, peak: np.ndarray) -> np.ndarray:
         """One objective's raw values (B,), computed only when the study asks for it."""
