@@ -30,7 +30,8 @@ import numpy as np  # noqa: E402
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from panel import panel_solve  # noqa: E402
 
-from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients  # noqa: E402
+from foilmap import SectionSet, offset_circle_coefficients  # noqa: E402
+from foilmap.section.evaluation import analyse, evaluate  # noqa: E402
 from foilmap.section.geometry import coordinates  # noqa: E402
 
 

@@ -8,7 +8,7 @@ import math
 import numpy as np
 import pytest
 
-from foilmap import evaluate
+from foilmap.section.evaluation import evaluate
 from foilmap.section.proxies import recovery_severity, stratford, thwaites
 
 

@@ -8,7 +8,8 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients
+from foilmap import SectionSet, offset_circle_coefficients
+from foilmap.section.evaluation import analyse, evaluate
 from foilmap.section._compiled import FIGURES, search_batch
 from foilmap.section.conformal import map_at
 from foilmap.section.status import Status

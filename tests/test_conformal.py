@@ -91,7 +91,7 @@ def test_schur_cohn_agrees_with_polynomial_roots():
 
 def test_validity_does_not_depend_on_sampling():
     # near-circle passing 0.004 from z₁ = −1 (inside the 0.02 margin): caught at any resolution
-    from foilmap import evaluate
+    from foilmap.section.evaluation import evaluate
     from foilmap.section.status import Status
 
     eps = 0.002  # circle centre −ε passes at −1 − 2ε
@@ -104,7 +104,7 @@ def test_validity_does_not_depend_on_sampling():
 def test_crossing_the_branch_cut_is_detected():
     # the circle through ζ = 1 with centre μ = +0.1 meets the real axis again at −0.8, inside
     # the Kármán–Trefftz cut [−1, 1]: z₁ = −1 lies outside it (test data, invented)
-    from foilmap import evaluate
+    from foilmap.section.evaluation import evaluate
     from foilmap.section.status import Status
 
     for points in (64, 256, 1024):
@@ -115,7 +115,7 @@ def test_crossing_the_branch_cut_is_detected():
 
 
 def test_garbage_coefficients_give_status_codes_not_exceptions():
-    from foilmap import evaluate
+    from foilmap.section.evaluation import evaluate
 
     rng = np.random.default_rng(3)
     c = 2.0 * (rng.standard_normal((300, 6)) + 1j * rng.standard_normal((300, 6)))

@@ -9,7 +9,8 @@ from importlib.resources import files
 
 import pytest
 
-from foilmap import evaluate, load_section
+from foilmap import load_section
+from foilmap.section.evaluation import evaluate
 
 
 @pytest.mark.slow

@@ -12,7 +12,8 @@ import pytest
 from conftest import cli
 from panel import panel_solve
 
-from foilmap import SectionSet, evaluate
+from foilmap import SectionSet
+from foilmap.section.evaluation import evaluate
 from foilmap.section.fitting import fit_section
 from foilmap.store.coordfile import load_coordinates
 

@@ -11,7 +11,8 @@ import numpy as np
 import pytest
 from panel import panel_solve
 
-from foilmap import SectionSet, analyse, evaluate, load_section
+from foilmap import SectionSet, load_section
+from foilmap.section.evaluation import analyse, evaluate
 from foilmap.section.evaluation import speed_at_stations
 from foilmap.section.fitting import (
     contour_deviation,

@@ -11,7 +11,8 @@ from conftest import joukowski
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
-from foilmap import SectionSet, analyse, evaluate, offset_circle_coefficients
+from foilmap import SectionSet, offset_circle_coefficients
+from foilmap.section.evaluation import analyse, evaluate
 from foilmap.section.conformal import CircleGrid, map_at, map_on_grid
 from foilmap.section.flow import surface_speed
 from foilmap.section.status import Status

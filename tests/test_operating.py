@@ -222,10 +222,10 @@ def test_symmetric_study_gives_symmetric_sections(tmp_path):
     sec = best.section
     assert np.all(sec.coefficients.imag == 0.0)
     ev = foilmap.evaluate(sec, alpha=0.0)  # zero to round-off (the LE is found to 1e-11 rad)
-    assert abs(ev.cl[0]) < 1e-10 and abs(ev.camber[0]) < 1e-9
-    assert abs(ev.alpha_zero_lift[0]) < 1e-10
+    assert abs(ev.cl) < 1e-10 and abs(ev.camber) < 1e-9
+    assert abs(ev.alpha_zero_lift_deg) < 1e-8
     ev = foilmap.evaluate(sec, cl=best.design_cl)  # the target met through the angle
-    assert ev.cl[0] == pytest.approx(best.design_cl, abs=1e-12) and ev.alpha[0] > 0
+    assert ev.cl == pytest.approx(best.design_cl, abs=1e-12) and ev.alpha_deg > 0
 
 
 def test_symmetric_contradictions_refused(tmp_path):

@@ -16,7 +16,8 @@ import h5py
 import numpy as np
 import pytest
 
-from foilmap import evaluate, load_section
+from foilmap import load_section
+from foilmap.section.evaluation import evaluate
 from foilmap.run.single import execute_run
 from foilmap.store.folder import StudyFolder
 from foilmap.store.runlog import read_run

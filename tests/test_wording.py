@@ -54,7 +54,8 @@ def test_ideal_lift_limit_is_named_for_what_it_is():
     assert "max ideal Cl" not in r.stdout
     assert "Cl limit of the ideal flow (not stall)" in r.stdout
     r = cli("evaluate", EXAMPLE, "--cl", "9")
-    from foilmap import evaluate, load_section
+    from foilmap import load_section
+    from foilmap.section.evaluation import evaluate
 
     top = evaluate(load_section(EXAMPLE).to_set(), cl=0.5).cl_max_ideal[0]  # closed form
     assert r.returncode == 2 and "largest Cl" in r.stderr and f"{top:.4g}" in r.stderr

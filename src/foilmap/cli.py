@@ -1,5 +1,12 @@
-"""The ``foilmap`` command: a table of subcommands, each parsing its arguments, calling the
-library and returning an exit code (0 done, 2 bad input)."""
+"""The ``foilmap`` command: a table of thin subcommands, each parsing its arguments, calling the
+library (:mod:`foilmap.api`, the engines of :mod:`foilmap.run`) and formatting what it returns
+(:mod:`foilmap.report`), with an exit code (0 done, 2 bad input).
+
+Adding a command: write its options as ``_options_NAME(parser)`` and its body as
+``cmd_NAME(args) -> int``, and register both with ``@command("NAME", "help", _options_NAME)``
+above the body; the table (:data:`COMMANDS`) lists the commands in the order of registration.
+Imports of the library happen inside the commands, so that ``foilmap --help`` stays quick.
+"""
 
 from __future__ import annotations
 
@@ -7,12 +14,14 @@ import argparse
 import json
 import math
 import sys
+from dataclasses import dataclass
 from pathlib import Path
+from typing import Callable
 
 from foilmap._version import __version__
 from foilmap.errors import InputError
 
-__all__ = ["main"]
+__all__ = ["main", "build_parser", "command", "COMMANDS"]
 
 EXIT_OK = 0
 EXIT_INPUT = 2
@@ -29,12 +38,35 @@ class _Parser(argparse.ArgumentParser):
         raise InputError(f"{self.prog}: {message}")
 
 
-def _display(obj):
-    """JSON output rounded for display (no 1.9999999999999996, no -0.0)."""
-    from foilmap.report.text import display_values
+# --- the command table ---------------------------------------------------------------------------
 
-    return display_values(obj)
+@dataclass(frozen=True)
+class Command:
+    """One subcommand: its name, its one-line help, the function adding its options, its body."""
 
+    name: str
+    help: str
+    options: Callable[[argparse.ArgumentParser], None]
+    run: Callable[[argparse.Namespace], int]
+
+
+#: every subcommand, in the order ``foilmap --help`` lists them
+COMMANDS: dict[str, Command] = {}
+
+
+def command(name: str, help: str, options: Callable[[argparse.ArgumentParser], None]):
+    """Register the decorated ``cmd_NAME(args) -> int`` as the subcommand ``name``."""
+
+    def register(run: Callable[[argparse.Namespace], int]):
+        if name in COMMANDS:
+            raise ValueError(f"command {name!r} is registered twice")
+        COMMANDS[name] = Command(name, help, options, run)
+        return run
+
+    return register
+
+
+# --- shared option types and groups --------------------------------------------------------------
 
 def _finite(kind: str, lo: float | None = None, hi: float | None = None, open_lo=False):
     def parse(text: str) -> float:
@@ -68,6 +100,42 @@ def _int_range(kind: str, lo: int, hi: int):
     return parse
 
 
+def _range(kind: str, lo: float, hi: float, most: int = 2001):
+    """argparse type for A:B:STEP (inclusive of B when the steps land on it)."""
+
+    def parse(text: str):
+        parts = text.split(":")
+        try:
+            a, b, step = (float(v) for v in parts)
+        except ValueError:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r} is not START:STOP:STEP (three numbers)") from None
+        if not all(map(math.isfinite, (a, b, step))) or step <= 0 or b < a:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r}: needs START <= STOP and STEP > 0")
+        if a < lo or b > hi:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r} leaves the allowed {lo:g} to {hi:g}")
+        n = int(math.floor((b - a) / step + 1e-9)) + 1
+        if n > most:
+            raise argparse.ArgumentTypeError(
+                f"{kind} range {text!r} has {n} steps; at most {most} are allowed")
+        return [a + i * step for i in range(n)]
+
+    return parse
+
+
+_WORKERS = _int_range("workers", 1, 1024)
+
+
+def _section_argument(p: argparse.ArgumentParser) -> None:
+    p.add_argument("section", help="section file (TOML)")
+
+
+def _json_option(p: argparse.ArgumentParser, what: str = "print one JSON object") -> None:
+    p.add_argument("--json", action="store_true", help=what)
+
+
 def _add_operating_point(p: argparse.ArgumentParser) -> None:
     g = p.add_mutually_exclusive_group(required=True)
     g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG",
@@ -99,6 +167,16 @@ def _add_conditions(p: argparse.ArgumentParser) -> None:
                    help="water density: fresh (by temperature) or sea (1025 kg/m3)")
 
 
+def _add_engine(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--workers", type=_WORKERS, help="worker processes (default: cores)")
+    p.add_argument("--engine", choices=("local", "dask"),
+                   help="local process pool (default) or a Dask cluster (cluster extra)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="Dask scheduler address, e.g. tcp://head:8786 (default: a LocalCluster)")
+    p.add_argument("--wait", action="store_true",
+                   help="if another foilmap is writing the folder, wait for it (default: stop)")
+
+
 def _sigma(args) -> float | None:
     """The cavitation number the options give, or None."""
     parts = {"--speed": args.speed, "--depth": args.depth, "--water-temp": args.water_temp}
@@ -119,112 +197,11 @@ def _sigma(args) -> float | None:
     return float(cavitation_number(args.speed, args.depth, args.water_temp, args.water))
 
 
-def _condition_record(rec, an, args) -> dict:
-    """The operating-range figures of an evaluation: critical Mach number, and what --mach and
-    the cavitation options ask."""
-    from foilmap.section.operating import cl_range_below, compressible_cp, critical_mach
+def _print_json(obj, indent: int = 1) -> None:
+    """JSON output rounded for display (no 1.9999999999999996, no -0.0)."""
+    from foilmap.report.text import display_values
 
-    ev = an.evaluation
-    out = {"chord_line": "source" if rec.reference_le is not None else "own",
-           "critical_mach": float(critical_mach(ev.cp_min[0], args.compressibility)),
-           "compressibility_rule": args.compressibility}
-    if args.mach is not None:
-        cp = float(compressible_cp(ev.cp_min[0], args.mach, args.compressibility))
-        out.update({"mach": args.mach, "cp_min_compressible": cp,
-                    "peak_suction_compressible": -cp})
-    sigma = _sigma(args)
-    if sigma is not None:
-        rng = cl_range_below(rec.to_set(), sigma, reference_le=rec.reference_le)
-        out.update({"cavitation_number": sigma,
-                    "cavitation_margin": sigma + float(ev.cp_min[0]),
-                    "cavitation_free_cl": None if rng is None else list(rng)})
-    return out
-
-
-def _analyse(args, proxies=("severity",)):
-    from foilmap.section.evaluation import analyse
-    from foilmap.store.sectionfile import load_section
-
-    rec = load_section(args.section)
-    kw = {"cl": args.cl} if args.cl is not None else {"alpha": math.radians(args.alpha)}
-    re = getattr(args, "re", None)
-    if re is not None and "stratford" not in proxies:
-        proxies = tuple(proxies) + ("stratford",)
-    an = analyse(rec.to_set(), points=args.points, proxies=proxies, reynolds=re,
-                 proxy_end=getattr(args, "proxy_end", 0.9), reference_le=rec.reference_le, **kw)
-    return rec, an
-
-
-def _check_ok(rec, an) -> None:
-    from foilmap.section.status import Status, describe
-
-    st = int(an.evaluation.status[0])
-    if st == Status.ABOVE_MAX_LIFT:
-        from foilmap.section.flow import max_ideal_cl
-
-        top = float(max_ideal_cl(an.sections, an.angle_frame)[0])
-        raise InputError(f"section {rec.name!r} cannot reach that Cl: the ideal flow's largest Cl "
-                         f"(at 90 degrees in the circle plane, far beyond any stall) is "
-                         f"{top:.4g}; ask for less")
-    if st != Status.OK:
-        raise InputError(f"section {rec.name!r} is not usable: {describe(st)} "
-                         f"(status {Status(st).label})")
-
-
-def cmd_evaluate(args) -> int:
-    from foilmap.report.text import (
-        display_values,
-        evaluation_record,
-        format_summary,
-        surface_table_csv,
-    )
-    from foilmap.section.status import Status
-    from foilmap.store.sectionfile import write_text_atomic
-
-    proxies = ("severity", "thwaites")
-    rec, an = _analyse(args, proxies)
-    record = evaluation_record(an.evaluation, 0, rec.name)
-    ok = int(an.evaluation.status[0]) == Status.OK
-    if ok:
-        record.update(_condition_record(rec, an, args))
-    if args.json:
-        print(json.dumps(display_values(record), indent=2))
-        if not ok:
-            print(f"foilmap evaluate: section {rec.name!r}: {record['status_text']}",
-                  file=sys.stderr)
-            return EXIT_INPUT
-    else:
-        _check_ok(rec, an)
-        used = proxies + (("stratford",) if args.re is not None else ())
-        print(format_summary(record, used))
-    if args.table:
-        from foilmap.section.evaluation import surface_distribution
-
-        zc, upper, q = surface_distribution(an, args.table_points, "cosine")
-        write_text_atomic(args.table, surface_table_csv(zc[0], upper[0], q[0], rec.name))
-        if not args.json:
-            print(f"surface distribution written to {args.table}")
-    return EXIT_OK
-
-
-def cmd_coords(args) -> int:
-    from foilmap.report.text import coordinates_text
-    from foilmap.section.evaluation import analyse
-    from foilmap.section.geometry import coordinates
-    from foilmap.store.sectionfile import load_section, write_text_atomic
-
-    rec = load_section(args.section)
-    sec = rec.to_set()
-    an = analyse(sec, alpha=0.0, proxies=())
-    _check_ok(rec, an)
-    zc = coordinates(sec, an.frame, an.split, args.points, args.spacing)[0]
-    text = coordinates_text(zc, rec.name)
-    if args.output:
-        write_text_atomic(args.output, text)
-        print(f"{args.points} points written to {args.output}")
-    else:
-        sys.stdout.write(text)
-    return EXIT_OK
+    print(json.dumps(display_values(obj), indent=indent))
 
 
 def _png_target(output: str, command: str) -> Path:
@@ -237,12 +214,12 @@ def _png_target(output: str, command: str) -> Path:
     return out
 
 
-def _write_png(out: Path, draw, stream=None) -> None:
-    """Draw into a temporary file and rename it into place: whole or not at all.  The line
-    saying so goes to ``stream`` (standard error when standard output carries JSON)."""
+def _write_png(out: Path, figure: Callable, stream=None, dpi: int = 120) -> None:
+    """Draw ``figure()`` into a temporary file and rename it into place: whole or not at all.
+    The line saying so goes to ``stream`` (standard error when standard output carries JSON)."""
     tmp = out.with_name(f".{out.stem}.part.png")
     try:
-        draw(tmp)
+        figure().savefig(tmp, dpi=dpi)
         tmp.replace(out)
     finally:
         if tmp.exists():
@@ -250,19 +227,189 @@ def _write_png(out: Path, draw, stream=None) -> None:
     print(f"plot written to {out}", file=stream or sys.stdout)
 
 
-def cmd_plot(args) -> int:
-    from foilmap.report.plots import plot_section
+# --- sections ------------------------------------------------------------------------------------
 
-    out = _png_target(args.output, "plot")
-    rec, an = _analyse(args)
-    _check_ok(rec, an)
-    _write_png(out, lambda tmp: plot_section(an, tmp, rec.name))
+def _options_evaluate(p):
+    _section_argument(p)
+    _add_operating_point(p)
+    p.add_argument("--re", type=_finite("Reynolds number", 0.0, 1e10, open_lo=True),
+                   metavar="RE", help="chord Reynolds number: adds Stratford's turbulent criterion")
+    p.add_argument("--proxy-end", type=_finite("proxy end station", 0.0, 1.0, open_lo=True),
+                   default=0.9, metavar="X", help="chord station where the recovery proxies stop")
+    _add_conditions(p)
+    _json_option(p)
+    p.add_argument("--table", metavar="FILE.csv", help="also write x, y, surface, cp, q per point")
+    p.add_argument("--table-points", type=_int_range("table points", 5, 100001), default=201,
+                   metavar="N", help="points in the --table file (default 201, cosine spacing)")
+
+
+@command("evaluate", "figures of a section at an angle or a target Cl", _options_evaluate)
+def cmd_evaluate(args) -> int:
+    from foilmap.api.sections import evaluate
+    from foilmap.report.text import format_summary
+    from foilmap.store.sectionfile import write_text_atomic
+
+    res = evaluate(args.section, alpha=args.alpha, cl=args.cl, points=args.points,
+                   reynolds=args.re, proxy_end=args.proxy_end, mach=args.mach,
+                   sigma=_sigma(args), compressibility=args.compressibility)
+    if args.json:
+        _print_json(res.record, indent=2)
+        if not res.ok:
+            print(f"foilmap evaluate: section {res.name!r}: {res.record['status_text']}",
+                  file=sys.stderr)
+            return EXIT_INPUT
+    else:
+        res.check()
+        used = ("severity", "thwaites") + (("stratford",) if args.re is not None else ())
+        print(format_summary(res.record, used))
+    if args.table:
+        write_text_atomic(args.table, res.surface_table(args.table_points))
+        if not args.json:
+            print(f"surface distribution written to {args.table}")
     return EXIT_OK
 
+
+def _options_sweep(p):
+    _section_argument(p)
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--alpha", type=_range("angle", -30.0, 30.0), metavar="A:B:STEP",
+                   help="angles of attack in degrees, e.g. -4:10:0.5")
+    g.add_argument("--cl", type=_range("lift coefficient", -5.0, 5.0), metavar="A:B:STEP",
+                   help="lift coefficients, e.g. 0:1.2:0.1")
+    _add_conditions(p)
+    _json_option(p, "print {\"rows\": [...]} as JSON")
+    p.add_argument("--csv", metavar="FILE.csv", help="also write the rows as CSV")
+    p.add_argument("-o", "--output", metavar="FILE.png",
+                   help="also draw Cl, Cm and the minimum-pressure envelope")
+
+
+@command("sweep", "the operating range: figures over angles or Cl values", _options_sweep)
+def cmd_sweep(args) -> int:
+    from foilmap.api.sections import sweep
+    from foilmap.report.sweep import format_sweep
+    from foilmap.report.text import CAUTION
+    from foilmap.store.sectionfile import write_text_atomic
+
+    png = _png_target(args.output, "sweep") if args.output else None
+    res = sweep(args.section, alpha=args.alpha, cl=args.cl, mach=args.mach, sigma=_sigma(args),
+                compressibility=args.compressibility)
+    if args.csv:
+        write_text_atomic(args.csv, res.to_csv())
+    if png is not None:
+        _write_png(png, res.figure, sys.stderr if args.json else None)
+    if args.json:
+        _print_json(res.record)
+        return EXIT_OK
+    print(format_sweep(res.record))
+    if args.csv:
+        print(f"rows written to {args.csv}")
+    print(CAUTION)
+    return EXIT_OK
+
+
+def _options_report(p):
+    p.add_argument("folders", nargs="+", metavar="DIR", help="study folders (side by side)")
+    p.add_argument("-o", "--output", required=True, metavar="FILE.html", help="the page to write")
+
+
+@command("report", "one self-contained HTML page of one or more studies", _options_report)
+def cmd_report(args) -> int:
+    from foilmap.api.folders import report_page
+
+    out = Path(args.output)
+    if out.suffix.lower() not in (".html", ".htm"):
+        raise InputError(f"report: output {str(out)!r} must end in .html")
+    if not out.parent.exists():
+        raise InputError(f"report: folder {str(out.parent)!r} does not exist")
+    report_page(args.folders, out)
+    print(f"report of {len(args.folders)} study folder(s) written to {out} (one self-contained "
+          "page: open it in a browser)")
+    return EXIT_OK
+
+
+def _options_inverse(p):
+    p.add_argument("target", help="target CSV: columns x, surface, and cp or q (as evaluate "
+                   "--table writes)")
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--cl", type=_finite("lift coefficient", -5.0, 5.0), metavar="CL",
+                   help="design lift coefficient of the target")
+    g.add_argument("--alpha", type=_finite("angle of attack", -30.0, 30.0), metavar="DEG",
+                   help="angle of attack of the target, degrees")
+    p.add_argument("--te-angle", type=_finite("trailing-edge angle", 0.0, 60.0), default=10.0,
+                   metavar="DEG", help="trailing-edge angle of the design (default 10)")
+    p.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24,
+                   help="shape-series coefficients of the fitted section (default 24)")
+    p.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                   help="the section file to write")
+    p.add_argument("--report", metavar="FILE.png", help="also draw target and achieved Cp")
+    _json_option(p, "print the figures as JSON")
+
+
+@command("inverse", "the section whose ideal-flow Cp is a target table", _options_inverse)
+def cmd_inverse(args) -> int:
+    from foilmap.api.sections import inverse
+    from foilmap.report.inverse import format_inverse
+
+    png = _png_target(args.report, "inverse") if args.report else None
+    res = inverse(args.target, cl=args.cl, alpha=args.alpha, te_angle=args.te_angle, n=args.n)
+    res.write(args.output)
+    if png is not None:
+        _write_png(png, res.figure, sys.stderr if args.json else None)
+    if args.json:
+        print(json.dumps({**res.record, "output": str(args.output)}, indent=1))
+        return EXIT_OK
+    print(format_inverse(res.record, args.target, args.output))
+    return EXIT_OK
+
+
+def _options_coords(p):
+    _section_argument(p)
+    p.add_argument("-n", "--points", type=_int_range("points", 5, 100001), default=201,
+                   help="number of points (default 201, as export)")
+    p.add_argument("--spacing", choices=("cosine", "map"), default="cosine",
+                   help="cosine in x on each surface, or uniform in circle angle (the map's own)")
+    p.add_argument("-o", "--output", metavar="FILE", help="output file (default: standard output)")
+
+
+@command("coords", "write coordinates (two columns, TE-upper-LE-lower-TE)", _options_coords)
+def cmd_coords(args) -> int:
+    from foilmap.api.sections import as_section, coordinates
+    from foilmap.report.text import coordinates_text
+    from foilmap.store.sectionfile import write_text_atomic
+
+    rec = as_section(args.section)
+    xy = coordinates(rec, points=args.points, spacing=args.spacing)
+    text = coordinates_text(xy[:, 0] + 1j * xy[:, 1], rec.name)
+    if args.output:
+        write_text_atomic(args.output, text)
+        print(f"{args.points} points written to {args.output}")
+    else:
+        sys.stdout.write(text)
+    return EXIT_OK
+
+
+def _options_plot(p):
+    _section_argument(p)
+    _add_operating_point(p)
+    p.add_argument("-o", "--output", required=True, metavar="FILE.png", help="output PNG")
+
+
+@command("plot", "PNG of the section, its streamlines and its Cp", _options_plot)
+def cmd_plot(args) -> int:
+    from foilmap.api.sections import evaluate
+
+    out = _png_target(args.output, "plot")
+    res = evaluate(args.section, alpha=args.alpha, cl=args.cl, points=args.points).check()
+    _write_png(out, res.figure, dpi=130)
+    return EXIT_OK
+
+
+# --- studies -------------------------------------------------------------------------------------
 
 def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None,
                 wait: bool = False, what: str = "foilmap run") -> int:
     from foilmap.report.progress import Progress
+    from foilmap.report.study import format_run_summary
     from foilmap.run.local import run_study
     from foilmap.store.lock import describe_holder
 
@@ -274,24 +421,19 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None,
                           progress=Progress.for_study(study, budget), engine=engine,
                           scheduler=scheduler, wait=None if wait else 0.0, what=what,
                           on_wait=waiting)
-    failed = [s for s in summaries if s.get("state") != "complete"]
-    from foilmap.report.text import plural
-
-    print(f"study {study.name}: {plural(len(summaries) - len(failed), 'run')} finished now, "
-          f"{len(failed)} failed; logs in {out / 'runs'}")
-    for s in failed:
-        print(f"  run {s['run']} {s.get('state', 'failed')}: {s.get('error', 'unknown error')}")
-    from foilmap.report.study import design_warnings, is_multi_objective
-
-    for line in design_warnings(out):
-        print(line)
-    done = [s for s in summaries if s.get("state") == "complete"]
-    if done and not is_multi_objective(study) and all(s.get("best") is None for s in done):
-        print(f"warning: no run of study {study.name} found a feasible design; loosen the "
-              f"constraints or widen the search (foilmap status {out} shows each run)")
-    return EXIT_OK if not failed else 1
+    print(format_run_summary(study, out, summaries))
+    return EXIT_OK if all(s.get("state") == "complete" for s in summaries) else 1
 
 
+def _options_run(p):
+    p.add_argument("study", help="study file (TOML), see docs/study-file.md")
+    p.add_argument("--out", metavar="DIR", help="study folder (default results/STUDY-NAME)")
+    p.add_argument("--budget", type=_int_range("budget", 10, 10**9), metavar="EVALS",
+                   help="evaluation budget of each run, replacing the study's")
+    _add_engine(p)
+
+
+@command("run", "run a study: every run logged to HDF5", _options_run)
 def cmd_run(args) -> int:
     from foilmap.store.studyfile import load_study
 
@@ -301,6 +443,12 @@ def cmd_run(args) -> int:
                        args.wait, "foilmap run")
 
 
+def _options_resume(p):
+    p.add_argument("folder", help="study folder")
+    _add_engine(p)
+
+
+@command("resume", "finish the unfinished runs of a study folder", _options_resume)
 def cmd_resume(args) -> int:
     from foilmap.store.folder import StudyFolder
 
@@ -310,34 +458,44 @@ def cmd_resume(args) -> int:
                        args.wait, "foilmap resume")
 
 
+def _options_status(p):
+    p.add_argument("folder", help="study folder")
+    _json_option(p)
+
+
+@command("status", "progress of every run of a study folder (also live)", _options_status)
 def cmd_status(args) -> int:
+    from foilmap.api.folders import status
     from foilmap.report.study import format_status
-    from foilmap.store.folder import StudyFolder
 
-    from foilmap.report.study import design_warnings
-
-    st = StudyFolder(args.folder).status()
-    st["warnings"] = design_warnings(Path(args.folder))
+    st = status(args.folder)
     if args.json:
-        print(json.dumps(_display(st), indent=1))
+        _print_json(st)
     else:
         print("\n".join([format_status(st), *st["warnings"]]))
     return EXIT_OK
 
 
+def _options_best(p):
+    p.add_argument("folder", help="study folder")
+    p.add_argument("--run", metavar="ID", help="one run's best (default: the whole study's)")
+    p.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                   help="section file to write")
+
+
+@command("best", "the best feasible design as a section file", _options_best)
 def cmd_best(args) -> int:
+    from foilmap.api.folders import best_design
+    from foilmap.report.study import design_warnings
     from foilmap.report.text import CAUTION
-    from foilmap.store.folder import StudyFolder
     from foilmap.store.sectionfile import format_section, write_text_atomic
 
-    d = StudyFolder(args.folder).best_design(args.run)
+    d = best_design(args.folder, args.run)
     text = format_section(f"{d.study_name}-{d.run_id}", d.coefficients, d.te_angle_deg,
                           d.provenance())
     write_text_atomic(args.output, text)
     print(f"best feasible design of {d.run_id} (objective {d.fun:.6g}, evaluation "
           f"{d.evaluation}) written to {args.output}")
-    from foilmap.report.study import design_warnings
-
     for line in design_warnings(Path(args.folder)):
         if f" run {d.run_id} " in line:
             print(line)
@@ -345,163 +503,46 @@ def cmd_best(args) -> int:
     return EXIT_OK
 
 
+def _options_plot_run(p):
+    p.add_argument("folder", help="study folder")
+    p.add_argument("-o", "--output", required=True, metavar="FILE.png", help="PNG to write")
+
+
+@command("plot-run", "PNG: convergence of every run and the best sections", _options_plot_run)
 def cmd_plot_run(args) -> int:
-    from foilmap.report.study import plot_runs
+    from foilmap.report.study import runs_figure
 
     out = _png_target(args.output, "plot-run")
-    _write_png(out, lambda tmp: plot_runs(Path(args.folder), tmp))
+    _write_png(out, lambda: runs_figure(Path(args.folder)))
     return EXIT_OK
 
 
+def _options_demo(p):
+    p.add_argument("--out", default=str(Path("results") / "demo"), metavar="DIR",
+                   help="output folder (default results/demo; replaced on every demo)")
+    p.add_argument("--workers", type=_WORKERS, help="worker processes (default: cores)")
+
+
+@command("demo", "a small real study on built-in defaults (under 2 minutes)", _options_demo)
 def cmd_demo(args) -> int:
     from foilmap.demo import run_demo
 
     return run_demo(Path(args.out), args.workers, _run_folder)
 
 
-def _range(kind: str, lo: float, hi: float, most: int = 2001):
-    """argparse type for A:B:STEP (inclusive of B when the steps land on it)."""
+# --- files ---------------------------------------------------------------------------------------
 
-    def parse(text: str):
-        parts = text.split(":")
-        try:
-            a, b, step = (float(v) for v in parts)
-        except ValueError:
-            raise argparse.ArgumentTypeError(
-                f"{kind} range {text!r} is not START:STOP:STEP (three numbers)") from None
-        if not all(map(math.isfinite, (a, b, step))) or step <= 0 or b < a:
-            raise argparse.ArgumentTypeError(
-                f"{kind} range {text!r}: needs START <= STOP and STEP > 0")
-        if a < lo or b > hi:
-            raise argparse.ArgumentTypeError(
-                f"{kind} range {text!r} leaves the allowed {lo:g} to {hi:g}")
-        n = int(math.floor((b - a) / step + 1e-9)) + 1
-        if n > most:
-            raise argparse.ArgumentTypeError(
-                f"{kind} range {text!r} has {n} steps; at most {most} are allowed")
-        return [a + i * step for i in range(n)]
-
-    return parse
+def _options_naca(p):
+    p.add_argument("code", help="four digits, for example 2412")
+    p.add_argument("-n", "--points", type=_int_range("points", 11, 100001), default=201,
+                   help="number of points (default 201, cosine spacing)")
+    p.add_argument("--open-te", action="store_true",
+                   help="the original open trailing edge (-0.1015) instead of the closed one")
+    p.add_argument("-o", "--output", required=True, metavar="FILE",
+                   help="coordinates file to write (two columns)")
 
 
-def cmd_sweep(args) -> int:
-    from foilmap.report.sweep import sweep_csv, sweep_figure, sweep_rows
-    from foilmap.report.text import CAUTION, display_values, format_number
-    from foilmap.section.operating import sweep
-    from foilmap.store.sectionfile import load_section, write_text_atomic
-
-    png = _png_target(args.output, "sweep") if args.output else None
-    rec = load_section(args.section)
-    sigma = _sigma(args)
-    kw = ({"alpha": [math.radians(a) for a in args.alpha]} if args.alpha is not None
-          else {"cl": args.cl})
-    res = sweep(rec.to_set(), mach=args.mach, rule=args.compressibility,
-                reference_le=rec.reference_le, **kw)
-    rows = sweep_rows(res, sigma)
-    if not any(r["cl"] is not None for r in rows):
-        raise InputError(f"sweep: section {rec.name!r} has no usable row in the range "
-                         f"(first row: {rows[0]['status']})")
-    if args.csv:
-        write_text_atomic(args.csv, sweep_csv(rows, rec.name))
-    if png is not None:
-        _write_png(png, lambda tmp: sweep_figure(rows, rec.name, sigma, args.mach)
-                   .savefig(tmp, dpi=120), sys.stderr if args.json else None)
-    if args.json:
-        out = {"name": rec.name, "chord_line": "source" if rec.reference_le is not None
-               else "own", "compressibility_rule": args.compressibility, "mach": args.mach,
-               "cavitation_number": sigma, "rows": rows, "caution": CAUTION}
-        print(json.dumps(display_values(out), indent=1))
-        return EXIT_OK
-    head = (f"{'alpha':>7} {'Cl':>8} {'Cm c/4':>8} {'peak up':>8} {'x':>6} {'peak lo':>8} "
-            f"{'x':>6} {'severity':>8} {'M crit':>7}")
-    print(f"foilmap sweep | {rec.name} | angles from the "
-          f"{'source' if rec.reference_le is not None else 'own'} chord line")
-    print(head)
-    print("-" * len(head))
-    for r in rows:
-        print(f"{format_number(r['alpha_deg'], 2):>7} {format_number(r['cl'], 4):>8} "
-              f"{format_number(r['cm_quarter_chord'], 4):>8} "
-              f"{format_number(r['peak_suction_upper'], 4):>8} "
-              f"{format_number(r['x_peak_upper'], 3):>6} "
-              f"{format_number(r['peak_suction_lower'], 4):>8} "
-              f"{format_number(r['x_peak_lower'], 3):>6} "
-              f"{format_number(r['recovery_severity'], 3):>8} "
-              f"{format_number(r['critical_mach'], 3):>7}"
-              + ("" if r["status"] == "ok" else f"  ({r['status']})"))
-    if sigma is not None:
-        print(f"cavitation number sigma {sigma:.4g}: rows with a negative cavitation_margin "
-              "cavitate (see --json or --csv)")
-    if args.csv:
-        print(f"rows written to {args.csv}")
-    print(CAUTION)
-    return EXIT_OK
-
-
-def cmd_report(args) -> int:
-    from foilmap.report.page import report_page
-    from foilmap.store.sectionfile import write_text_atomic
-
-    out = Path(args.output)
-    if out.suffix.lower() not in (".html", ".htm"):
-        raise InputError(f"report: output {str(out)!r} must end in .html")
-    if not out.parent.exists():
-        raise InputError(f"report: folder {str(out.parent)!r} does not exist")
-    write_text_atomic(out, report_page(args.folders))
-    print(f"report of {len(args.folders)} study folder(s) written to {out} (one self-contained "
-          "page: open it in a browser)")
-    return EXIT_OK
-
-
-def cmd_inverse(args) -> int:
-    from foilmap.report.inverse import inverse_figure, inverse_record
-    from foilmap.report.text import CAUTION
-    from foilmap.section.inverse import inverse_section
-    from foilmap.store.sectionfile import format_section, write_text_atomic
-    from foilmap.store.targetfile import load_target
-
-    png = _png_target(args.report, "inverse") if args.report else None
-    target = load_target(args.target)
-    name = Path(args.target).stem
-    kw = {"cl": args.cl} if args.cl is not None else {"alpha": math.radians(args.alpha)}
-    res = inverse_section(target, te_angle=math.radians(args.te_angle), coefficients=args.n,
-                          **kw)
-    rec = inverse_record(res, name)
-    if not (math.isfinite(res.rms_deviation) and math.isfinite(res.cl)) \
-            or res.fit.max_deviation > 0.01:
-        raise InputError(f"inverse: target {str(args.target)!r} gives no usable section at "
-                         "this operating point (the contour folds or does not close); check "
-                         "the target and the operating point")
-    prov = {"inverse_of": str(args.target), "method": "Lighthill inverse, least closure change",
-            "design_cl": res.cl, "design_alpha_deg": math.degrees(res.alpha),
-            "rms_cp_deviation": rec["rms_cp_deviation"],
-            "max_cp_deviation": rec["max_cp_deviation"],
-            "fit_max_deviation_chords": res.fit.max_deviation}
-    write_text_atomic(args.output, format_section(name, res.fit.coefficients,
-                                                  math.degrees(res.fit.te_angle), prov))
-    if png is not None:
-        _write_png(png, lambda tmp: inverse_figure(res, name).savefig(tmp, dpi=120),
-                   sys.stderr if args.json else None)
-    if args.json:
-        print(json.dumps({**rec, "output": str(args.output)}, indent=1))
-        return EXIT_OK
-    cov = ", ".join(f"{s} x/c {v[0]:.3f} to {v[1]:.3f}" for s, v in rec["target_covers"].items()
-                    if v is not None)
-    print(f"target {args.target}: {rec['target_points']} points ({cov})")
-    print(f"inverse design at Cl {res.cl:.4f}, alpha {rec['alpha_deg']:.3f} deg, trailing-edge "
-          f"angle {rec['te_angle_deg']:.2f} deg; {rec['iterations']} iterations"
-          + ("" if rec["converged"] else " (stopped at the iteration limit)"))
-    print(f"achieved Cp against the target: RMS deviation {rec['rms_cp_deviation']:.2g}, "
-          f"largest {rec['max_cp_deviation']:.2g} at x/c "
-          f"{rec['max_cp_deviation_at']['x']:.3f} ({rec['max_cp_deviation_at']['surface']})")
-    print(f"closure: ln q changed by up to {rec['closure_change_given_max_dlnq']:.2g} where the "
-          f"target is given, {rec['closure_change_free_max_dlnq']:.2g} on the free part; "
-          f"stations beyond x/c 0.99 (the trailing-edge stagnation) are not matched")
-    print(f"fitted with {args.n} coefficients: deviation max {res.fit.max_deviation:.2e}, RMS "
-          f"{res.fit.rms_deviation:.2e} chords; section written to {args.output}")
-    print(CAUTION)
-    return EXIT_OK
-
-
+@command("naca", "coordinates of a NACA four-digit section (published formula)", _options_naca)
 def cmd_naca(args) -> int:
     from foilmap.report.text import xy_lines
     from foilmap.section.naca import naca4_coordinates, parse_naca4
@@ -511,47 +552,43 @@ def cmd_naca(args) -> int:
     xy = naca4_coordinates(args.code, args.points, closed_te=not args.open_te)
     edge = "open" if args.open_te else "closed"
     head = f"NACA {args.code.strip().upper().removeprefix('NACA').strip()}  ({edge} trailing edge)"
-    body = xy_lines(xy[:, 0], xy[:, 1])
-    write_text_atomic(args.output, f"{head}\n{body}\n")
+    write_text_atomic(args.output, f"{head}\n{xy_lines(xy[:, 0], xy[:, 1])}\n")
     print(f"{args.points} points written to {args.output}")
     return EXIT_OK
 
 
+def _options_fit(p):
+    p.add_argument("coords", help="coordinates file (two columns; see docs/coordinates.md)")
+    p.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24, metavar="N",
+                   help="coefficients to keep (default 24)")
+    p.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                   help="section file to write")
+    p.add_argument("--report", metavar="FILE.png",
+                   help="overlay of given and fitted contours with the deviation along the chord")
+    _json_option(p, "print the fit's figures as JSON")
+
+
+@command("fit", "conformal-map coefficients of a coordinates file", _options_fit)
 def cmd_fit(args) -> int:
-    from foilmap.report.text import CAUTION
-    from foilmap.section.fitting import fit_section
-    from foilmap.store.coordfile import load_coordinates
-    from foilmap.store.sectionfile import format_section, write_text_atomic
+    from foilmap.api.sections import fit
+    from foilmap.report.text import CAUTION, format_fit
 
-    if args.report:
-        report = _png_target(args.report, "fit")
-    coords = load_coordinates(args.coords)
-    fit = fit_section(coords.xy, coords.le_index, args.n, source_le=coords.source_le)
-    print(f"read {coords.rows_read} points of {coords.name!r} ({coords.layout} layout"
-          f"{', reversed to run over the upper surface first' if coords.reversed else ''})")
-    if coords.te_gap > 0:
-        print(f"open trailing edge: gap {coords.te_gap:.5f} chords, closed for the fit by a "
-              f"linear thickness ramp (largest shift {coords.closing_shift:.5f} chords)")
-    print(f"trailing-edge angle {math.degrees(fit.te_angle):.3f} deg; Theodorsen iteration "
-          f"{'converged' if fit.converged else 'NOT converged'} in {fit.iterations} steps")
-    print(f"deviation with {args.n} coefficients: max {fit.max_deviation:.2e}, "
-          f"RMS {fit.rms_deviation:.2e} chords (full series of {fit.full_terms} terms: "
-          f"max {fit.full_max_deviation:.2e})")
-    prov = {"fitted_from": str(args.coords), "coefficients_fitted": args.n,
-            "max_deviation_chords": fit.max_deviation, "rms_deviation_chords": fit.rms_deviation,
-            "te_gap_chords": coords.te_gap}
-    write_text_atomic(args.output, format_section(coords.name, fit.coefficients,
-                                                  math.degrees(fit.te_angle), prov,
-                                                  reference_le=fit.reference_le))
-    print(f"section written to {args.output}; its angles, Cl and Cm are measured from the "
-          f"file's chord line (leading edge to trailing edge as the file gives them)")
-    if args.report:
-        from foilmap.report.plots import plot_fit
-
-        _write_png(report, lambda tmp: plot_fit(coords, fit, tmp))
+    png = _png_target(args.report, "fit") if args.report else None
+    res = fit(args.coords, n=args.n)
+    res.write(args.output)
+    if args.json:
+        if png is not None:
+            _write_png(png, res.figure, sys.stderr)
+        _print_json({**res.record, "output": str(args.output)})
+        return EXIT_OK
+    print(format_fit(res.record, args.output))
+    if png is not None:
+        _write_png(png, res.figure)
     print(CAUTION)
     return EXIT_OK
 
+
+# --- fronts and designs --------------------------------------------------------------------------
 
 def _reference(text: str | None):
     if text is None:
@@ -565,34 +602,49 @@ def _reference(text: str | None):
     return vals
 
 
+def _options_fronts(p):
+    p.add_argument("paths", nargs="+", metavar="DIR_OR_RUN", help="study folders or run logs")
+    p.add_argument("--reference", metavar="R1,R2[,R3]",
+                   help="common hypervolume reference point (default: the studies' own)")
+    _json_option(p)
+    p.add_argument("--csv", metavar="FILE", help="one row per front design")
+    p.add_argument("-o", "--output", metavar="FILE.png", help="figure of fronts and statistics")
+
+
+@command("fronts", "compare the Pareto fronts of runs and studies", _options_fronts)
 def cmd_fronts(args) -> int:
-    from foilmap.report.compare import (
-        collect_fronts,
-        compare_fronts,
-        format_fronts,
-        fronts_csv,
-        plot_fronts,
-    )
+    from foilmap.api.folders import compare_fronts
     from foilmap.store.sectionfile import write_text_atomic
 
     png = _png_target(args.output, "fronts") if args.output else None
-    fronts = collect_fronts(args.paths)
-    res = compare_fronts(fronts, _reference(args.reference))
-    print(json.dumps(_display(res), indent=1) if args.json else format_fronts(res))
+    res = compare_fronts(args.paths, reference=_reference(args.reference))
+    if args.json:
+        _print_json(res.record)
+    else:
+        print(res.text())
     if args.csv:
-        write_text_atomic(args.csv, fronts_csv(fronts, res))
+        write_text_atomic(args.csv, res.to_csv())
         if not args.json:
             print(f"front designs written to {args.csv}")
     if png is not None:
-        if args.json:
-            plot_fronts(fronts, res, png)
-        else:
-            _write_png(png, lambda tmp: plot_fronts(fronts, res, tmp))
+        _write_png(png, res.figure, sys.stderr if args.json else None, dpi=110)
     return EXIT_OK
 
 
+def _options_pick(p):
+    p.add_argument("folder", help="study folder")
+    how = p.add_mutually_exclusive_group(required=True)
+    how.add_argument("--nearest", metavar="F1=V1,F2=V2", help="nearest to these objective values")
+    how.add_argument("--knee", action="store_true", help="the knee of the front")
+    how.add_argument("--index", metavar="K_OR_ID", help="position in the merged front, or RUN#EVAL")
+    p.add_argument("--run", metavar="ID", help="only this run's front")
+    p.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
+                   help="section file to write")
+
+
+@command("pick", "a design from a study's front as a section file", _options_pick)
 def cmd_pick(args) -> int:
-    from foilmap.report.compare import pick_design
+    from foilmap.api.folders import pick
     from foilmap.report.text import CAUTION
     from foilmap.store.sectionfile import format_section, write_text_atomic
 
@@ -606,8 +658,7 @@ def cmd_pick(args) -> int:
             except ValueError:
                 raise InputError(f"--nearest {args.nearest!r}: write NAME=VALUE pairs separated "
                                  "by commas, for example peak_suction=0.8,severity=0.4") from None
-    d = pick_design(Path(args.folder), nearest=nearest, knee=args.knee, index=args.index,
-                    run=args.run)
+    d = pick(args.folder, nearest=nearest, knee=args.knee, index=args.index, run=args.run)
     prov = {**d.provenance(), "design": d.id,
             **{f"objective_{k}": v for k, v in d.objectives.items()}}
     write_text_atomic(args.output, format_section(f"{d.run_id}-{d.evaluation}", d.coefficients,
@@ -618,93 +669,76 @@ def cmd_pick(args) -> int:
     return EXIT_OK
 
 
-SCREEN_NOTE = ("First screening by integral boundary-layer methods (Thwaites, Michel, Head, "
-               "Squire-Young) on the ideal-flow speed: not a replacement for a viscous solver.")
+def _options_screen(p):
+    _section_argument(p)
+    _add_operating_point(p)
+    p.add_argument("--re", required=True, type=_finite("Reynolds number", 1e4, 1e9),
+                   metavar="RE", help="chord Reynolds number")
+    _json_option(p)
 
 
+@command("screen", "integral boundary-layer screening: transition, separation and profile drag",
+         _options_screen)
 def cmd_screen(args) -> int:
+    from foilmap.api.sections import SCREEN_NOTE, screen
     from foilmap.report.text import CAUTION, format_screen
-    from foilmap.section.screening import DRAG_STATION, screen_analysis
 
-    rec, an = _analyse(args, ())
-    _check_ok(rec, an)
-    res = screen_analysis(an, args.re)
-    out = {"name": rec.name, "cl": float(an.evaluation.cl[0]),
-           "alpha_deg": math.degrees(an.evaluation.alpha[0]), **res.record(0),
-           "drag_station_x": DRAG_STATION, "note": SCREEN_NOTE, "caution": CAUTION}
+    res = screen(args.section, reynolds=args.re, cl=args.cl, alpha=args.alpha,
+                 points=args.points)
     if args.json:
-        print(json.dumps(_display(out), indent=2))
+        _print_json(res.record, indent=2)
         return EXIT_OK
-    print(format_screen(out, rec.name, args.re))
+    print(format_screen(res.record, res.record["name"], args.re))
     print(SCREEN_NOTE)
     print(CAUTION)
     return EXIT_OK
 
 
-def _designs_from_folder(args, folder: Path):
-    """The designs ``export`` takes from a study folder: the best, the merged front (--all), or
-    the given ids."""
-    from foilmap.report.export import Design
-    from foilmap.store.folder import StudyFolder
+def _options_export(p):
+    p.add_argument("selection", help="a section file, or a study folder with --best, --ids, --all")
+    g = p.add_mutually_exclusive_group()
+    g.add_argument("--cl", type=_finite("lift coefficient", -20.0, 20.0), metavar="CL",
+                   help="operating point (default: the design Cl of the run)")
+    g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG",
+                   help="export at this angle of attack, degrees (instead of the design Cl)")
+    w = p.add_mutually_exclusive_group()
+    w.add_argument("--best", action="store_true", help="the best feasible design of the folder")
+    w.add_argument("--ids", metavar="ID,...", help="front designs by id (RUN#EVAL, see fronts)")
+    w.add_argument("--all", action="store_true", help="every design of the folder's fronts")
+    p.add_argument("--run", metavar="ID", help="with --best: one run's best")
+    p.add_argument("--re", type=_finite("Reynolds number", 1e4, 1e9), metavar="RE",
+                   help="Reynolds number for the boundary-layer screening in design.json")
+    p.add_argument("--points", type=_int_range("points", 11, 100001), default=201,
+                   help="coordinate points per design (default 201)")
+    p.add_argument("--spacing", choices=("cosine", "map", "curvature"), default="cosine",
+                   help="point spacing: cosine in x, the map's own, or by curvature")
+    p.add_argument("--te-thickness", type=_finite("trailing-edge thickness", 0.0, 0.05),
+                   default=0.0, metavar="T", help="open the trailing edge to T chords")
+    p.add_argument("--mesh", action="store_true", help="also a 2-D gmsh mesh (mesh extra)")
+    p.add_argument("--farfield", type=_finite("far field", 2.0, 1000.0), default=20.0,
+                   metavar="CHORDS", help="far-field radius of the mesh")
+    p.add_argument("--first-cell", type=_finite("first cell height", 1e-8, 1e-2),
+                   default=1e-5, metavar="H", help="first cell height at the wall, chords")
+    p.add_argument("-o", "--output", required=True, metavar="DIR",
+                   help="folder to create for the bundle (new or empty)")
 
-    sf = StudyFolder(folder)
-    if args.best:
-        picks = [sf.best_design(args.run)]
-    else:
-        if args.all:
-            wanted, _, _ = sf.merged_front(args.run)
-        else:
-            wanted = [i.strip() for i in args.ids.split(",") if i.strip()]
-            on_fronts = {i for f in sf.fronts() for i in f.ids}
-            for i in wanted:
-                if i not in on_fronts:
-                    raise InputError(f"no design {i!r} on the fronts of {str(folder)!r} "
-                                     f"(see foilmap fronts {folder})")
-        picks = [sf.design_by_id(i) for i in wanted]
-    alpha = None if args.alpha is None else math.radians(args.alpha)
-    return [Design.from_folder_design(d, cl=args.cl, alpha=alpha, reynolds=args.re)
-            for d in picks]
 
-
+@command("export", "hand-off bundles for viscous analysis", _options_export)
 def cmd_export(args) -> int:
-    from foilmap.report.export import Design, export_designs
+    from foilmap.api.sections import export
     from foilmap.report.progress import CountProgress
     from foilmap.report.text import CAUTION
-    from foilmap.store.sectionfile import atomic_folder, load_section
 
-    out = Path(args.output)
-    if out.exists() and (not out.is_dir() or any(out.iterdir())):
-        raise InputError(f"export: output {str(out)!r} exists and is not an empty folder")
-    if not out.parent.exists():
-        raise InputError(f"export: folder {str(out.parent)!r} does not exist")
-    if args.mesh:
-        from foilmap.report.mesh import check_gmsh
+    def bar(count):
+        return CountProgress("exporting", count) if count > 1 else None
 
-        check_gmsh()
-    sel = Path(args.selection)
-    if sel.is_dir():
-        if not (args.best or args.ids or args.all):
-            raise InputError("export: a study folder needs --best, --ids ID,... or --all")
-        designs = _designs_from_folder(args, sel)
-    elif sel.is_file():
-        if args.best or args.ids or args.all:
-            raise InputError("export: --best, --ids and --all select from a study folder, "
-                             f"not from the section file {str(sel)!r}")
-        if args.cl is None and args.alpha is None:
-            raise InputError("export: a section file needs the operating point: --cl or --alpha")
-        rec = load_section(sel)
-        designs = [Design(rec.name, rec.to_set(), cl=args.cl,
-                          alpha=None if args.alpha is None else math.radians(args.alpha),
-                          reynolds=args.re, provenance={"file": str(sel), **rec.provenance})]
-    else:
-        raise InputError(f"export: {str(sel)!r} is neither a section file nor a study folder")
-    progress = CountProgress("exporting", len(designs)) if len(designs) > 1 else None
-    with atomic_folder(out) as tmp:
-        rows = export_designs(designs, tmp, points=args.points, spacing=args.spacing,
-                              te_thickness=args.te_thickness, mesh=args.mesh,
-                              farfield=args.farfield, first_cell=args.first_cell,
-                              progress=progress)
-    print(f"{len(rows)} design(s) exported to {out} (summary.csv, one folder per design)")
+    res = export(args.selection, args.output, cl=args.cl, alpha=args.alpha, best=args.best,
+                 ids=args.ids, all_designs=args.all, run=args.run, reynolds=args.re,
+                 points=args.points, spacing=args.spacing, te_thickness=args.te_thickness,
+                 mesh=args.mesh, farfield=args.farfield, first_cell=args.first_cell,
+                 progress=bar)
+    print(f"{len(res.rows)} design(s) exported to {res.folder} (summary.csv, one folder per "
+          "design)")
     if args.te_thickness > 0:
         print(f"trailing edge opened to {args.te_thickness:g} chords by a linear thickness blend "
               f"(points move by up to {args.te_thickness / 2:g} chords; the LE does not move)")
@@ -712,11 +746,12 @@ def cmd_export(args) -> int:
     return EXIT_OK
 
 
-def _add_engine(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--engine", choices=("local", "dask"),
-                   help="local process pool (default) or a Dask cluster (cluster extra)")
-    p.add_argument("--scheduler", metavar="ADDRESS",
-                   help="Dask scheduler address, e.g. tcp://head:8786 (default: a LocalCluster)")
+# --- the parser and the entry point --------------------------------------------------------------
+
+#: the order ``foilmap --help`` lists the commands in (commands not named here follow, in the
+#: order they were registered)
+ORDER = ("evaluate", "sweep", "report", "inverse", "coords", "plot", "run", "resume", "status",
+         "best", "plot-run", "demo", "naca", "fit", "fronts", "pick", "screen", "export")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -725,195 +760,12 @@ def build_parser() -> argparse.ArgumentParser:
         "Ideal-flow screening: check chosen sections by viscous analysis and tests."))
     p.add_argument("--version", action="version", version=f"foilmap {__version__}")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser, metavar="COMMAND")
-
-    e = sub.add_parser("evaluate", help="figures of a section at an angle or a target Cl")
-    e.add_argument("section", help="section file (TOML)")
-    _add_operating_point(e)
-    e.add_argument("--re", type=_finite("Reynolds number", 0.0, 1e10, open_lo=True),
-                   metavar="RE", help="chord Reynolds number: adds Stratford's turbulent criterion")
-    e.add_argument("--proxy-end", type=_finite("proxy end station", 0.0, 1.0, open_lo=True),
-                   default=0.9, metavar="X", help="chord station where the recovery proxies stop")
-    _add_conditions(e)
-    e.add_argument("--json", action="store_true", help="print one JSON object")
-    e.add_argument("--table", metavar="FILE.csv", help="also write x, y, surface, cp, q per point")
-    e.add_argument("--table-points", type=_int_range("table points", 5, 100001), default=201,
-                   metavar="N", help="points in the --table file (default 201, cosine spacing)")
-    e.set_defaults(func=cmd_evaluate)
-
-    sw = sub.add_parser("sweep", help="the operating range: figures over angles or Cl values")
-    sw.add_argument("section", help="section file (TOML)")
-    g = sw.add_mutually_exclusive_group(required=True)
-    g.add_argument("--alpha", type=_range("angle", -30.0, 30.0), metavar="A:B:STEP",
-                   help="angles of attack in degrees, e.g. -4:10:0.5")
-    g.add_argument("--cl", type=_range("lift coefficient", -5.0, 5.0), metavar="A:B:STEP",
-                   help="lift coefficients, e.g. 0:1.2:0.1")
-    _add_conditions(sw)
-    sw.add_argument("--json", action="store_true", help="print {\"rows\": [...]} as JSON")
-    sw.add_argument("--csv", metavar="FILE.csv", help="also write the rows as CSV")
-    sw.add_argument("-o", "--output", metavar="FILE.png",
-                    help="also draw Cl, Cm and the minimum-pressure envelope")
-    sw.set_defaults(func=cmd_sweep)
-
-    rp = sub.add_parser("report", help="one self-contained HTML page of one or more studies")
-    rp.add_argument("folders", nargs="+", metavar="DIR", help="study folders (side by side)")
-    rp.add_argument("-o", "--output", required=True, metavar="FILE.html",
-                    help="the page to write")
-    rp.set_defaults(func=cmd_report)
-
-    iv = sub.add_parser("inverse", help="the section whose ideal-flow Cp is a target table")
-    iv.add_argument("target", help="target CSV: columns x, surface, and cp or q (as evaluate "
-                    "--table writes)")
-    g = iv.add_mutually_exclusive_group(required=True)
-    g.add_argument("--cl", type=_finite("lift coefficient", -5.0, 5.0), metavar="CL",
-                   help="design lift coefficient of the target")
-    g.add_argument("--alpha", type=_finite("angle of attack", -30.0, 30.0), metavar="DEG",
-                   help="angle of attack of the target, degrees")
-    iv.add_argument("--te-angle", type=_finite("trailing-edge angle", 0.0, 60.0), default=10.0,
-                    metavar="DEG", help="trailing-edge angle of the design (default 10)")
-    iv.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24,
-                    help="shape-series coefficients of the fitted section (default 24)")
-    iv.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
-                    help="the section file to write")
-    iv.add_argument("--report", metavar="FILE.png", help="also draw target and achieved Cp")
-    iv.add_argument("--json", action="store_true", help="print the figures as JSON")
-    iv.set_defaults(func=cmd_inverse)
-
-    c = sub.add_parser("coords", help="write coordinates (two columns, TE-upper-LE-lower-TE)")
-    c.add_argument("section", help="section file (TOML)")
-    c.add_argument("-n", "--points", type=_int_range("points", 5, 100001), default=201,
-                   help="number of points (default 201, as export)")
-    c.add_argument("--spacing", choices=("cosine", "map"), default="cosine",
-                   help="cosine in x on each surface, or uniform in circle angle (the map's own)")
-    c.add_argument("-o", "--output", metavar="FILE", help="output file (default: standard output)")
-    c.set_defaults(func=cmd_coords)
-
-    pl = sub.add_parser("plot", help="PNG of the section, its streamlines and its Cp")
-    pl.add_argument("section", help="section file (TOML)")
-    _add_operating_point(pl)
-    pl.add_argument("-o", "--output", required=True, metavar="FILE.png", help="output PNG")
-    pl.set_defaults(func=cmd_plot)
-
-    workers_t = _int_range("workers", 1, 1024)
-    r = sub.add_parser("run", help="run a study: every run logged to HDF5")
-    r.add_argument("study", help="study file (TOML), see docs/study-file.md")
-    r.add_argument("--out", metavar="DIR", help="study folder (default results/STUDY-NAME)")
-    r.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
-    r.add_argument("--budget", type=_int_range("budget", 10, 10**9), metavar="EVALS",
-                   help="evaluation budget of each run, replacing the study's")
-    _add_engine(r)
-    r.add_argument("--wait", action="store_true",
-                   help="if another foilmap is writing the folder, wait for it (default: stop)")
-    r.set_defaults(func=cmd_run)
-
-    rs = sub.add_parser("resume", help="finish the unfinished runs of a study folder")
-    rs.add_argument("folder", help="study folder")
-    rs.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
-    _add_engine(rs)
-    rs.add_argument("--wait", action="store_true",
-                    help="if another foilmap is writing the folder, wait for it (default: stop)")
-    rs.set_defaults(func=cmd_resume)
-
-    s_ = sub.add_parser("status", help="progress of every run of a study folder (also live)")
-    s_.add_argument("folder", help="study folder")
-    s_.add_argument("--json", action="store_true", help="print one JSON object")
-    s_.set_defaults(func=cmd_status)
-
-    b = sub.add_parser("best", help="the best feasible design as a section file")
-    b.add_argument("folder", help="study folder")
-    b.add_argument("--run", metavar="ID", help="one run's best (default: the whole study's)")
-    b.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
-                   help="section file to write")
-    b.set_defaults(func=cmd_best)
-
-    pr = sub.add_parser("plot-run", help="PNG: convergence of every run and the best sections")
-    pr.add_argument("folder", help="study folder")
-    pr.add_argument("-o", "--output", required=True, metavar="FILE.png",
-                    help="PNG to write")
-    pr.set_defaults(func=cmd_plot_run)
-
-    d = sub.add_parser("demo", help="a small real study on built-in defaults (under 2 minutes)")
-    d.add_argument("--out", default=str(Path("results") / "demo"), metavar="DIR",
-                   help="output folder (default results/demo; replaced on every demo)")
-    d.add_argument("--workers", type=workers_t, help="worker processes (default: cores)")
-    d.set_defaults(func=cmd_demo)
-
-    nc = sub.add_parser("naca", help="coordinates of a NACA four-digit section (published formula)")
-    nc.add_argument("code", help="four digits, for example 2412")
-    nc.add_argument("-n", "--points", type=_int_range("points", 11, 100001), default=201,
-                    help="number of points (default 201, cosine spacing)")
-    nc.add_argument("--open-te", action="store_true",
-                    help="the original open trailing edge (-0.1015) instead of the closed one")
-    nc.add_argument("-o", "--output", required=True, metavar="FILE",
-                    help="coordinates file to write (two columns)")
-    nc.set_defaults(func=cmd_naca)
-
-    ft = sub.add_parser("fit", help="conformal-map coefficients of a coordinates file")
-    ft.add_argument("coords", help="coordinates file (two columns; see docs/coordinates.md)")
-    ft.add_argument("-n", type=_int_range("coefficients", 1, 64), default=24, metavar="N",
-                    help="coefficients to keep (default 24)")
-    ft.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
-                    help="section file to write")
-    ft.add_argument("--report", metavar="FILE.png",
-                    help="overlay of given and fitted contours with the deviation along the chord")
-    ft.set_defaults(func=cmd_fit)
-
-    fr = sub.add_parser("fronts", help="compare the Pareto fronts of runs and studies")
-    fr.add_argument("paths", nargs="+", metavar="DIR_OR_RUN", help="study folders or run logs")
-    fr.add_argument("--reference", metavar="R1,R2[,R3]",
-                    help="common hypervolume reference point (default: the studies' own)")
-    fr.add_argument("--json", action="store_true", help="print one JSON object")
-    fr.add_argument("--csv", metavar="FILE", help="one row per front design")
-    fr.add_argument("-o", "--output", metavar="FILE.png", help="figure of fronts and statistics")
-    fr.set_defaults(func=cmd_fronts)
-
-    pk = sub.add_parser("pick", help="a design from a study's front as a section file")
-    pk.add_argument("folder", help="study folder")
-    how = pk.add_mutually_exclusive_group(required=True)
-    how.add_argument("--nearest", metavar="F1=V1,F2=V2", help="nearest to these objective values")
-    how.add_argument("--knee", action="store_true", help="the knee of the front")
-    how.add_argument("--index", metavar="K_OR_ID", help="position in the merged front, or RUN#EVAL")
-    pk.add_argument("--run", metavar="ID", help="only this run's front")
-    pk.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
-                    help="section file to write")
-    pk.set_defaults(func=cmd_pick)
-
-    sc = sub.add_parser("screen", help="integral boundary-layer screening: transition, "
-                        "separation and profile drag")
-    sc.add_argument("section", help="section file (TOML)")
-    _add_operating_point(sc)
-    sc.add_argument("--re", required=True, type=_finite("Reynolds number", 1e4, 1e9),
-                    metavar="RE", help="chord Reynolds number")
-    sc.add_argument("--json", action="store_true", help="print one JSON object")
-    sc.set_defaults(func=cmd_screen)
-
-    ex = sub.add_parser("export", help="hand-off bundles for viscous analysis")
-    ex.add_argument("selection", help="a section file, or a study folder with --best, --ids, --all")
-    g = ex.add_mutually_exclusive_group()
-    g.add_argument("--cl", type=_finite("lift coefficient", -20.0, 20.0), metavar="CL",
-                   help="operating point (default: the design Cl of the run)")
-    g.add_argument("--alpha", type=_finite("angle of attack", -89.0, 89.0), metavar="DEG",
-                   help="export at this angle of attack, degrees (instead of the design Cl)")
-    w = ex.add_mutually_exclusive_group()
-    w.add_argument("--best", action="store_true", help="the best feasible design of the folder")
-    w.add_argument("--ids", metavar="ID,...", help="front designs by id (RUN#EVAL, see fronts)")
-    w.add_argument("--all", action="store_true", help="every design of the folder's fronts")
-    ex.add_argument("--run", metavar="ID", help="with --best: one run's best")
-    ex.add_argument("--re", type=_finite("Reynolds number", 1e4, 1e9), metavar="RE",
-                    help="Reynolds number for the boundary-layer screening in design.json")
-    ex.add_argument("--points", type=_int_range("points", 11, 100001), default=201,
-                    help="coordinate points per design (default 201)")
-    ex.add_argument("--spacing", choices=("cosine", "map", "curvature"), default="cosine",
-                    help="point spacing: cosine in x, the map's own, or by curvature")
-    ex.add_argument("--te-thickness", type=_finite("trailing-edge thickness", 0.0, 0.05),
-                    default=0.0, metavar="T", help="open the trailing edge to T chords")
-    ex.add_argument("--mesh", action="store_true", help="also a 2-D gmsh mesh (mesh extra)")
-    ex.add_argument("--farfield", type=_finite("far field", 2.0, 1000.0), default=20.0,
-                    metavar="CHORDS", help="far-field radius of the mesh")
-    ex.add_argument("--first-cell", type=_finite("first cell height", 1e-8, 1e-2),
-                    default=1e-5, metavar="H", help="first cell height at the wall, chords")
-    ex.add_argument("-o", "--output", required=True, metavar="DIR",
-                    help="folder to create for the bundle (new or empty)")
-    ex.set_defaults(func=cmd_export)
+    names = [n for n in ORDER if n in COMMANDS] + [n for n in COMMANDS if n not in ORDER]
+    for name in names:
+        c = COMMANDS[name]
+        sp = sub.add_parser(c.name, help=c.help)
+        c.options(sp)
+        sp.set_defaults(func=c.run)
     return p
 
 

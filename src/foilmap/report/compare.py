@@ -24,7 +24,7 @@ from foilmap.errors import InputError
 from foilmap.store.folder import RunFront, StudyFolder, collect_fronts
 
 __all__ = ["RunFront", "collect_fronts", "compare_fronts", "format_fronts", "fronts_csv",
-           "plot_fronts", "pick_design"]
+           "plot_fronts", "fronts_figure", "pick_design"]
 
 
 def _common(fronts: list[RunFront], reference) -> tuple[list[str], np.ndarray]:
@@ -154,7 +154,13 @@ def fronts_csv(fronts: list[RunFront], res: dict) -> str:
 
 
 def plot_fronts(fronts: list[RunFront], res: dict, path) -> None:
-    """Fronts overlaid by group, median attainment surfaces, hypervolume against evaluations."""
+    """Write :func:`fronts_figure` to ``path`` (PNG)."""
+    fronts_figure(fronts, res).savefig(path, dpi=110)
+
+
+def fronts_figure(fronts: list[RunFront], res: dict):
+    """A Figure: fronts overlaid by group, median attainment surfaces, hypervolume against
+    evaluations."""
     import matplotlib
     from matplotlib.figure import Figure
 
@@ -198,7 +204,7 @@ def plot_fronts(fronts: list[RunFront], res: dict, path) -> None:
         ax.grid(True, color="0.9")
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
     fig.tight_layout(rect=(0, 0.04, 1, 1))
-    fig.savefig(path, dpi=110)
+    return fig
 
 
 def pick_design(folder: Path, *, nearest: dict | None = None, knee: bool = False,

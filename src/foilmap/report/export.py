@@ -55,6 +55,8 @@ class Design:
     objectives: dict = field(default_factory=dict)
     constraints: dict = field(default_factory=dict)  # name → {"value", "margin"}
     provenance: dict = field(default_factory=dict)
+    #: a fitted section's source chord line (angles, Cl and Cm measured from it), or None
+    reference_le: complex | None = None
 
     @classmethod
     def from_folder_design(cls, d, cl: float | None = None, alpha: float | None = None,
@@ -182,7 +184,8 @@ def export_designs(designs: list[Design], out: Path, *, points: int = 201,
     used = set()
     for d in designs:
         kw = {"cl": d.cl} if d.cl is not None else {"alpha": d.alpha}
-        an = analyse(d.section, **kw, proxies=("severity", "thwaites"))
+        an = analyse(d.section, **kw, proxies=("severity", "thwaites"),
+                     reference_le=d.reference_le)
         ev = an.evaluation
         if ev.status[0] != 0:
             from foilmap.section.status import describe
@@ -206,7 +209,8 @@ def export_designs(designs: list[Design], out: Path, *, points: int = 201,
             cls += [float(c) for c in d.cl_range]
         tables = []
         for c in cls:
-            an_c = an if c == cls[0] else analyse(d.section, cl=c, proxies=())
+            an_c = an if c == cls[0] else analyse(d.section, cl=c, proxies=(),
+                                                  reference_le=d.reference_le)
             if an_c.evaluation.status[0] != 0:
                 continue
             fname = f"surface-cl{c:.3f}.csv"

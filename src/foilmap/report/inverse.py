@@ -9,7 +9,7 @@ import numpy as np
 
 from foilmap.report.text import CAUTION, display_values
 
-__all__ = ["inverse_record", "inverse_figure"]
+__all__ = ["inverse_record", "inverse_figure", "format_inverse"]
 
 
 def inverse_record(res, name: str) -> dict:
@@ -86,3 +86,24 @@ def inverse_figure(res, name: str):
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=6.5, color="0.3", wrap=True)
     fig.subplots_adjust(left=0.1, right=0.97, top=0.93, bottom=0.1)
     return fig
+
+
+def format_inverse(rec: dict, target: str, output: str) -> str:
+    """The text of ``foilmap inverse`` from its record."""
+    cov = ", ".join(f"{s} x/c {v[0]:.3f} to {v[1]:.3f}" for s, v in rec["target_covers"].items()
+                    if v is not None)
+    return "\n".join([
+        f"target {target}: {rec['target_points']} points ({cov})",
+        f"inverse design at Cl {rec['cl']:.4f}, alpha {rec['alpha_deg']:.3f} deg, trailing-edge "
+        f"angle {rec['te_angle_deg']:.2f} deg; {rec['iterations']} iterations"
+        + ("" if rec["converged"] else " (stopped at the iteration limit)"),
+        f"achieved Cp against the target: RMS deviation {rec['rms_cp_deviation']:.2g}, "
+        f"largest {rec['max_cp_deviation']:.2g} at x/c "
+        f"{rec['max_cp_deviation_at']['x']:.3f} ({rec['max_cp_deviation_at']['surface']})",
+        f"closure: ln q changed by up to {rec['closure_change_given_max_dlnq']:.2g} where the "
+        f"target is given, {rec['closure_change_free_max_dlnq']:.2g} on the free part; "
+        f"stations beyond x/c 0.99 (the trailing-edge stagnation) are not matched",
+        f"fitted with {rec['fit_coefficients']} coefficients: deviation max "
+        f"{rec['fit_max_deviation']:.2e}, RMS {rec['fit_rms_deviation']:.2e} chords; section "
+        f"written to {output}",
+        CAUTION])

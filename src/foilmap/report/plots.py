@@ -14,7 +14,7 @@ from foilmap.report.text import CAUTION
 from foilmap.section.conformal import map_at
 from foilmap.section.evaluation import Analysis, surface_distribution
 
-__all__ = ["streamfunction_grid", "plot_section", "plot_fit"]
+__all__ = ["streamfunction_grid", "plot_section", "section_figure", "plot_fit", "fit_figure"]
 
 
 def streamfunction_grid(analysis: Analysis, i: int = 0, radial: int = 90, angular: int = 361,
@@ -101,7 +101,12 @@ def section_figure(analysis: Analysis, name: str = "section", i: int = 0, points
 
 
 def plot_fit(coords, fit, path) -> None:
-    """Given and fitted contours overlaid, and the deviation along the chord."""
+    """Write :func:`fit_figure` to ``path`` (PNG)."""
+    fit_figure(coords, fit).savefig(path, dpi=120)
+
+
+def fit_figure(coords, fit):
+    """A Figure: given and fitted contours overlaid, and the deviation along the chord."""
     from matplotlib.figure import Figure
 
     from foilmap.section.fitting import dense_reference
@@ -133,4 +138,4 @@ def plot_fit(coords, fit, path) -> None:
     axd.grid(True, color="0.9")
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=6, color="0.3", wrap=True)
     fig.tight_layout(rect=(0, 0.04, 1, 1))
-    fig.savefig(path, dpi=120)
+    return fig

@@ -13,8 +13,26 @@ from foilmap.errors import InputError
 from foilmap.report.text import plural
 from foilmap.store.folder import StudyFolder, is_multi_objective
 
-__all__ = ["format_status", "damage_lines", "sharp_nose_warnings", "floor_warnings", "design_warnings",
+__all__ = ["format_run_summary", "format_status", "damage_lines", "sharp_nose_warnings", "floor_warnings", "design_warnings",
            "runs_figure", "plot_runs", "LE_RADIUS_FLOOR", "ON_FLOOR", "is_multi_objective"]
+
+
+def format_run_summary(study, out: Path, summaries: list[dict]) -> str:
+    """What ``foilmap run`` and ``resume`` print when their runs end: how many finished or
+    failed (each failure with its error), the design warnings, and a line when no run found a
+    feasible design."""
+    failed = [s for s in summaries if s.get("state") != "complete"]
+    lines = [f"study {study.name}: {plural(len(summaries) - len(failed), 'run')} finished now, "
+             f"{len(failed)} failed; logs in {Path(out) / 'runs'}"]
+    for s in failed:
+        lines.append(f"  run {s['run']} {s.get('state', 'failed')}: "
+                     f"{s.get('error', 'unknown error')}")
+    lines += design_warnings(Path(out))
+    done = [s for s in summaries if s.get("state") == "complete"]
+    if done and not is_multi_objective(study) and all(s.get("best") is None for s in done):
+        lines.append(f"warning: no run of study {study.name} found a feasible design; loosen "
+                     f"the constraints or widen the search (foilmap status {out} shows each run)")
+    return "\n".join(lines)
 
 
 def format_status(st: dict) -> str:

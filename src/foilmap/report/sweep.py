@@ -16,7 +16,7 @@ import numpy as np
 
 from foilmap.report.text import CAUTION, display_values
 
-__all__ = ["sweep_rows", "sweep_csv", "sweep_figure"]
+__all__ = ["sweep_rows", "sweep_csv", "sweep_figure", "format_sweep"]
 
 _COLUMNS = ("alpha_deg", "cl", "cm_quarter_chord", "peak_suction_upper", "x_peak_upper",
             "peak_suction_lower", "x_peak_lower", "recovery_severity",
@@ -50,9 +50,12 @@ def sweep_rows(res: dict, sigma: float | None = None) -> list[dict]:
             if key in res:
                 row[key] = _num(res[key][i])
         if sigma is not None:
+            from foilmap.section.operating import cavitation_margin
+
             worst = max((v for v in (row["peak_suction_upper"], row["peak_suction_lower"])
                          if v is not None), default=None)
-            row["cavitation_margin"] = None if worst is None else sigma - worst
+            row["cavitation_margin"] = (None if worst is None
+                                        else float(cavitation_margin(sigma, worst)))
         rows.append(display_values(row))
     return rows
 
@@ -113,3 +116,28 @@ def sweep_figure(rows: list[dict], name: str, sigma: float | None = None,
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
     fig.tight_layout(rect=(0, 0.04, 1, 0.95))
     return fig
+
+
+def format_sweep(record: dict) -> str:
+    """The text table of ``foilmap sweep`` from its record (:func:`foilmap.sweep`)."""
+    from foilmap.report.text import format_number
+
+    head = (f"{'alpha':>7} {'Cl':>8} {'Cm c/4':>8} {'peak up':>8} {'x':>6} {'peak lo':>8} "
+            f"{'x':>6} {'severity':>8} {'M crit':>7}")
+    lines = [f"foilmap sweep | {record['name']} | angles from the {record['chord_line']} chord "
+             "line", head, "-" * len(head)]
+    for r in record["rows"]:
+        lines.append(f"{format_number(r['alpha_deg'], 2):>7} {format_number(r['cl'], 4):>8} "
+                     f"{format_number(r['cm_quarter_chord'], 4):>8} "
+                     f"{format_number(r['peak_suction_upper'], 4):>8} "
+                     f"{format_number(r['x_peak_upper'], 3):>6} "
+                     f"{format_number(r['peak_suction_lower'], 4):>8} "
+                     f"{format_number(r['x_peak_lower'], 3):>6} "
+                     f"{format_number(r['recovery_severity'], 3):>8} "
+                     f"{format_number(r['critical_mach'], 3):>7}"
+                     + ("" if r["status"] == "ok" else f"  ({r['status']})"))
+    sigma = record.get("cavitation_number")
+    if sigma is not None:
+        lines.append(f"cavitation number sigma {sigma:.4g}: rows with a negative "
+                     "cavitation_margin cavitate (see --json or --csv)")
+    return "\n".join(lines)

@@ -19,6 +19,7 @@ __all__ = [
     "format_summary",
     "format_number",
     "format_screen",
+    "format_fit",
     "display_values",
     "plural",
     "surface_table_csv",
@@ -197,6 +198,26 @@ def format_screen(out: dict, name: str, reynolds: float) -> str:
         lines.append(f"  {side:<6} transition x/c {fx(r['x_transition'])}{how}; laminar "
                      f"separation {fx(r['x_laminar_separation'])}; turbulent separation "
                      f"{fx(r['x_turbulent_separation'])}")
+    return "\n".join(lines)
+
+
+def format_fit(rec: dict, output: str) -> str:
+    """The text of ``foilmap fit`` from its record (:func:`foilmap.fit`)."""
+    rev = ", reversed to run over the upper surface first" if rec["reversed"] else ""
+    lines = [f"read {rec['points_read']} points of {rec['name']!r} ({rec['layout']} layout{rev})"]
+    if rec["te_gap_chords"] > 0:
+        lines.append(f"open trailing edge: gap {rec['te_gap_chords']:.5f} chords, closed for the "
+                     f"fit by a linear thickness ramp (largest shift "
+                     f"{rec['closing_shift_chords']:.5f} chords)")
+    lines.append(f"trailing-edge angle {rec['te_angle_deg']:.3f} deg; Theodorsen iteration "
+                 f"{'converged' if rec['converged'] else 'NOT converged'} in "
+                 f"{rec['iterations']} steps")
+    lines.append(f"deviation with {rec['coefficients_fitted']} coefficients: max "
+                 f"{rec['max_deviation_chords']:.2e}, RMS {rec['rms_deviation_chords']:.2e} chords "
+                 f"(full series of {rec['full_terms']} terms: max "
+                 f"{rec['full_max_deviation_chords']:.2e})")
+    lines.append(f"section written to {output}; its angles, Cl and Cm are measured from the "
+                 "file's chord line (leading edge to trailing edge as the file gives them)")
     return "\n".join(lines)
 
 

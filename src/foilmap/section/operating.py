@@ -21,8 +21,10 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["RULES", "sweep", "surface_peaks", "cl_range_below", "compressible_cp", "sonic_cp", "critical_mach", "saturation_pressure",
-           "water_density", "cavitation_number", "GAMMA_AIR", "P_ATM", "G", "SEA_WATER_DENSITY"]
+__all__ = ["RULES", "sweep", "surface_peaks", "cl_range_below", "condition_figures",
+           "cavitation_margin", "compressible_cp", "sonic_cp", "critical_mach",
+           "saturation_pressure", "water_density", "cavitation_number", "GAMMA_AIR", "P_ATM", "G",
+           "SEA_WATER_DENSITY"]
 
 GAMMA_AIR = 1.4
 P_ATM = 101325.0  # Pa, standard atmosphere at sea level
@@ -238,4 +240,40 @@ def sweep(section, *, alpha=None, cl=None, mach: float | None = None,
         for side in ("upper", "lower"):
             out[f"peak_suction_{side}_compressible"] = -compressible_cp(
                 -out[f"peak_suction_{side}"], mach, rule)
+    return out
+
+
+def cavitation_margin(sigma, peak_suction):
+    """σ − (−Cp_min): positive while the section is free of cavitation (inception where the peak
+    suction reaches σ).  Any shapes that broadcast."""
+    return np.asarray(sigma, dtype=float) - np.asarray(peak_suction, dtype=float)
+
+
+def condition_figures(cp_min: float, *, rule: str = "karman-tsien", mach: float | None = None,
+                      sigma: float | None = None, section=None, reference_le=None,
+                      points: int | None = None) -> dict:
+    """The operating-range figures of one evaluated section: its critical Mach number, and what a
+    Mach number or a cavitation number asks.
+
+    ``cp_min`` is the section's (incompressible, certified) minimum Cp at the operating point.
+    Keys: ``critical_mach`` and ``compressibility_rule``; with ``mach`` also ``mach``,
+    ``cp_min_compressible`` and ``peak_suction_compressible``; with ``sigma`` also
+    ``cavitation_number``, ``cavitation_margin`` (σ − peak suction) and ``cavitation_free_cl``
+    (the Cl interval ``[low, high]`` of :func:`cl_range_below` at σ for ``section``, a batch of
+    one measured from ``reference_le``; None when no Cl is free of cavitation).
+    """
+    cp_min = float(cp_min)
+    out = {"critical_mach": float(critical_mach(cp_min, rule)), "compressibility_rule": rule}
+    if mach is not None:
+        cp = float(compressible_cp(cp_min, mach, rule))
+        out.update({"mach": float(mach), "cp_min_compressible": cp,
+                    "peak_suction_compressible": -cp})
+    if sigma is not None:
+        if section is None:
+            raise ValueError("the cavitation-free Cl range needs the section")
+        kw = {} if points is None else {"points": points}
+        rng = cl_range_below(section, float(sigma), reference_le=reference_le, **kw)
+        out.update({"cavitation_number": float(sigma),
+                    "cavitation_margin": float(cavitation_margin(sigma, -cp_min)),
+                    "cavitation_free_cl": None if rng is None else [float(v) for v in rng]})
     return out

@@ -31,6 +31,7 @@ from foilmap.section.conformal import SectionSet
 
 __all__ = [
     "SectionRecord",
+    "ReferencedSectionSet",
     "load_section",
     "parse_section",
     "format_section",
@@ -70,8 +71,32 @@ class SectionRecord:
                 "the own chord frame to the trailing edge (the fitted file's own chord line)")
 
     def to_set(self) -> SectionSet:
-        """The section as a batch of one."""
-        return SectionSet(self.coefficients[None, :], np.radians([self.te_angle_deg]))
+        """The section as a batch of one; a fitted section's batch carries its chord line
+        (``reference_le``, shape (1,)), which every public call measures angles from."""
+        if self.reference_le is None:
+            return SectionSet(self.coefficients[None, :], np.radians([self.te_angle_deg]))
+        return ReferencedSectionSet(self.coefficients[None, :], np.radians([self.te_angle_deg]),
+                                    np.array([self.reference_le], dtype=complex))
+
+
+@dataclass(frozen=True)
+class ReferencedSectionSet(SectionSet):
+    """A batch of sections whose angles, Cl and Cm are measured from reference chord lines:
+    ``reference_le`` (complex, shape (B,)) is each line's leading-edge end in the section's own
+    chord frame (a fitted section's source line; see :class:`SectionRecord`)."""
+
+    reference_le: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        super().__post_init__()
+        ref = np.broadcast_to(np.asarray(self.reference_le, dtype=complex),
+                              (len(self),)).copy()
+        object.__setattr__(self, "reference_le", ref)
+
+    def __getitem__(self, item) -> "ReferencedSectionSet":
+        idx = np.atleast_1d(np.arange(len(self))[item])
+        return ReferencedSectionSet(self.coefficients[idx], self.te_angle[idx],
+                                    self.reference_le[idx])
 
 
 def _is_number(v) -> bool:
