@@ -1,6 +1,6 @@
 """The package's layers: imports go one way, and there is no import cycle.
 
-    errors, _version  <-  section  <-  design  <-  store  <-  report  <-  run  <-  api, demo  <-  cli
+    errors, _version, caution  <-  section  <-  design  <-  store  <-  report  <-  run  <-  api, demo  <-  cli
 
 A module may import from its own layer and the layers to its left, never from the right; this
 holds for imports inside functions too.  Module-level imports form no cycle.
@@ -15,7 +15,7 @@ import pytest
 
 SRC = Path(__file__).resolve().parents[1] / "src" / "foilmap"
 
-RANK = {"errors": 0, "_version": 0, "section": 1, "design": 2, "store": 3, "report": 4,
+RANK = {"errors": 0, "_version": 0, "caution": 0, "section": 1, "design": 2, "store": 3, "report": 4,
         "run": 5, "api": 6, "demo": 6, "cli": 7, "__init__": 7, "__main__": 7}
 
 

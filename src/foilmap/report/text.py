@@ -9,6 +9,7 @@ import math
 
 import numpy as np
 
+from foilmap.caution import CAUTION  # defined in the bottom layer; re-exported here
 from foilmap.section.evaluation import Evaluation
 from foilmap.section.status import Status, describe
 
@@ -27,11 +28,6 @@ __all__ = [
     "xy_lines",
 ]
 
-#: printed in every report and stored in every export
-CAUTION = (
-    "Ideal-flow screening result: a section that carries loads or people must be checked by "
-    "viscous analysis and physical tests; local codes and licensed engineering practice govern."
-)
 #: units and sign conventions, printed with every report
 CONVENTIONS = (
     "Lengths in chords, LE at (0,0), TE at (1,0); angles in degrees to the chord line; "

@@ -18,10 +18,10 @@ import time
 from pathlib import Path
 
 from foilmap._version import __version__
+from foilmap.caution import CAUTION
 from foilmap.design.problem import Problem
 from foilmap.design.results import RunState
 from foilmap.design.study import RunSpec, Study
-from foilmap.report.text import CAUTION
 from foilmap.store.folder import StudyFolder
 from foilmap.store.lock import Busy, Lock
 from foilmap.store.runlog import (
