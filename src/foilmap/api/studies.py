@@ -18,7 +18,18 @@ from foilmap.errors import InputError
 from foilmap.store.folder import StudyFolder, is_multi_objective
 
 __all__ = ["RunState", "RunResult", "History", "FrontDesign", "StudyResults", "open_results",
-           "run_study"]
+           "run_study", "RunsFailed"]
+
+
+class RunsFailed(RuntimeError):
+    """Runs of a study failed (or were cut short): the message names them and the first error;
+    ``.failed`` holds their summaries and ``.results`` the folder's results as they stand
+    (the complete runs are kept; ``run_study`` again retries the rest)."""
+
+    def __init__(self, message: str, failed: list[dict], results: "StudyResults"):
+        super().__init__(message)
+        self.failed = failed
+        self.results = results
 
 #: history columns, in the order of the run log's per-generation datasets
 _HISTORY = ("evaluations", "restart", "popsize", "sigma", "best_f", "feasible_fraction",
@@ -136,11 +147,29 @@ def run_study(study: Study, folder: str | Path, *, workers: int | None = None,
     terminal, periodic lines otherwise); by default nothing is printed.  Nothing changes in the
     calling process (environment, signal handlers, plotting backend), and nothing is written
     outside ``folder``.  Ctrl-C commits every run; calling again resumes them.
+
+    ``workers=1`` (or ``workers = 1`` in the study's ``[engine]`` table) runs the runs one after
+    another in this process, with no pool.  Otherwise workers are spawned processes that never
+    import the calling script again: a script needs no ``if __name__ == "__main__":`` guard.
+
+    Raises :class:`RunsFailed` when any run failed or was cut short, naming the runs and the
+    first error (the complete runs are kept, and calling again retries the others).
     """
     from foilmap.report.progress import Progress
     from foilmap.run import local as _engine
 
-    _engine.run_study(study, Path(folder), workers=workers, budget=budget,
-                      progress=Progress.for_study(study, budget) if progress else None,
-                      engine=engine, scheduler=scheduler)
-    return StudyResults(folder)
+    summaries = _engine.run_study(
+        study, Path(folder), workers=workers, budget=budget,
+        progress=Progress.for_study(study, budget) if progress else None, engine=engine,
+        scheduler=scheduler)
+    results = StudyResults(folder)
+    failed = [s for s in summaries if s.get("state") != RunState.COMPLETE.value]
+    if failed:
+        names = ", ".join(str(s.get("run")) for s in failed)
+        first = next((s.get("error") for s in failed if s.get("error")), "no error recorded")
+        first = " ".join(str(first).split())  # one line
+        raise RunsFailed(f"{len(failed)} of {len(summaries)} runs of study {study.name!r} "
+                         f"failed ({names}); first error: {first}; the complete runs are kept "
+                         f"in {str(folder)!r}, and run_study again retries the others",
+                         failed, results)
+    return results

@@ -10,12 +10,14 @@ checkpoints.
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing as mp
 import os
 import signal
 import sys
 import threading
 import time
+import types
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from pathlib import Path
@@ -23,11 +25,12 @@ from pathlib import Path
 from foilmap.design.results import RunState
 from foilmap.design.study import RunSpec, Study
 from foilmap.errors import InputError
-from foilmap.run.single import disk_problem, init_worker, worker
+from foilmap.run.single import RUN_ATTEMPTS, disk_problem, execute_run, init_worker, worker
+from foilmap.store.lock import Busy
 from foilmap.store.folder import INDEXED, StudyFolder
 from foilmap.store.lock import FOLDER_LOCK, Lock
 
-__all__ = ["run_study", "ABORT_GRACE"]
+__all__ = ["run_study", "ABORT_GRACE", "workers_without_main"]
 
 #: seconds an interrupted study gives its workers to commit before they are killed
 ABORT_GRACE = 20.0
@@ -69,6 +72,31 @@ class _single_threaded_kernels:
         return False
 
 
+@contextlib.contextmanager
+def workers_without_main():
+    """Processes spawned inside this block do not run the caller's main module again.
+
+    multiprocessing's spawn start re-imports the parent's ``__main__`` (the script, or the
+    module of ``python -m``) in every child, so that a script that starts a study without the
+    ``if __name__ == "__main__":`` guard would start it again in each worker and break the pool.
+    A worker needs nothing from the caller's main module (it gets the validated study and
+    imports foilmap), so the children are started as modules of their own: while they start,
+    ``sys.modules["__main__"]`` is a stand-in without a file or a module name, which the spawn
+    preparation then leaves out.  The caller's module is back in place when the block ends.
+    """
+    main = sys.modules.get("__main__")
+    stand_in = types.ModuleType("__main__", "stand-in while foilmap starts its workers")
+    stand_in.__spec__ = None
+    sys.modules["__main__"] = stand_in
+    try:
+        yield
+    finally:
+        if main is None:
+            sys.modules.pop("__main__", None)
+        else:
+            sys.modules["__main__"] = main
+
+
 def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
               progress=None, engine: str | None = None, scheduler: str | None = None,
               wait: float | None = 0.0, what: str = "foilmap run", on_wait=None) -> list[dict]:
@@ -88,6 +116,8 @@ def run_study(study: Study, out: Path, workers: int | None = None, budget: int |
     engine = engine or study.engine["kind"]
     scheduler = scheduler if scheduler is not None else (study.engine["scheduler"] or None)
     workers = workers or study.engine["workers"] or None
+    if workers is not None and workers < 1:
+        raise InputError(f"workers = {workers!r} is out of range (allowed: 1 or more)")
     if scheduler and engine != "dask":
         raise InputError("a scheduler address needs the dask engine (engine = dask, or "
                          "kind = \"dask\" in [engine])")
@@ -119,6 +149,7 @@ def _run_locked(study, out, workers, budget, progress, engine, scheduler) -> lis
     folder, study = StudyFolder.prepare(study, out,
                                         budget if budget is not None else study.budget)
     runs = study.runs()
+    here = workers == 1 and engine == "local"  # one worker asked for: this process, no pool
     workers = max(1, min(workers or os.cpu_count() or 1, len(runs)))
     states: dict[str, dict] = {}
     todo = _todo(folder, states)
@@ -128,6 +159,8 @@ def _run_locked(study, out, workers, budget, progress, engine, scheduler) -> lis
         progress.done = len(runs) - len(todo)
     if not todo:
         return []
+    if here:
+        return _drive(_InProcessBackend(), folder, todo, (study,), states, progress)
     if min(workers, len(todo)) > 1:
         # several workers start at once: compile (or load) here first, so that they load the
         # compiled kernel from the cache instead of each compiling it; a single worker loads
@@ -158,7 +191,9 @@ class _LocalBackend:
                                         initargs=(self.queue, os.getpid()))
 
     def submit(self, args, run_id: str, out: Path):
-        with _single_threaded_kernels():  # the pool starts its workers on submission
+        # the pool starts its workers on submission: single-threaded kernels, and never the
+        # caller's script again (a script without the main guard works)
+        with _single_threaded_kernels(), workers_without_main():
             return self.pool.submit(worker, *args, run_id, str(out))
 
     def wait(self, pending, timeout: float):
@@ -196,11 +231,116 @@ class _LocalBackend:
             self.pool.shutdown(wait=True, cancel_futures=True)
 
 
+class _Task:
+    """A run the in-process engine will run when it is waited for."""
+
+    def __init__(self, args, run_id: str, out: Path):
+        self.args, self.run_id, self.out = args, run_id, Path(out)
+        self.summary = None
+        self.order = 0
+
+
+class _InProcessBackend:
+    """``workers = 1``: the runs one after another in the calling process, no pool.
+
+    Progress goes to the driver as the run commits (``on_message``).  While a run runs, Ctrl-C
+    and SIGTERM (from the main thread's handlers, restored after) ask it to commit at the end of
+    its generation, as a pool worker does; then KeyboardInterrupt (Ctrl-C) or SystemExit(143)
+    ends the study, and calling again resumes it.
+    """
+
+    def __init__(self):
+        self._inbox: list[dict] = []
+        self._signal = None
+        self.on_message = None
+        self.on_start = None
+
+    def submit(self, args, run_id: str, out: Path):
+        return _Task(args, run_id, out)
+
+    def _report(self, msg: dict) -> None:
+        self._inbox.append(msg)
+        if self.on_message is not None:
+            self.on_message()
+
+    def _run(self, task: _Task) -> dict:
+        (study,) = task.args
+        run = next(r for r in study.runs() if r.run_id == task.run_id)
+        if self.on_start is not None:
+            self.on_start(task.run_id)
+        error = None
+        for _ in range(RUN_ATTEMPTS):
+            try:
+                return execute_run(study, run, task.out, self._report,
+                                   lambda: self._signal is not None)
+            except Busy as exc:  # another writer: retrying would only wait again
+                error = str(exc)
+                break
+            except Exception as exc:  # a failing run is recorded, the study goes on
+                error = f"{type(exc).__name__}: {exc}"
+                disk = disk_problem(exc)
+                if disk:
+                    error = f"{disk}; free space or make the folder writable, then foilmap resume"
+                    break
+        return {"run": task.run_id, "state": RunState.FAILED.value, "error": error,
+                "attempts": RUN_ATTEMPTS}
+
+    def wait(self, pending, timeout: float):  # noqa: ARG002 - runs the next run whole
+        task = min(pending, key=lambda t: t.order)
+        main = threading.current_thread() is threading.main_thread()
+        old = {}
+
+        def stop(signum, frame):  # noqa: ARG001 - commit at the end of the generation
+            self._signal = signum
+
+        if main:
+            old = {sig: signal.signal(sig, stop) for sig in (signal.SIGINT, signal.SIGTERM)}
+        try:
+            task.summary = self._run(task)
+        except SystemExit as exc:
+            if exc.code == 143 and self._signal == signal.SIGINT:
+                raise KeyboardInterrupt from None
+            if exc.code == 143 and self._signal is not None:
+                raise SystemExit(128 + int(self._signal)) from None
+            raise
+        finally:
+            for sig, handler in old.items():
+                signal.signal(sig, handler)
+        return {task}, pending - {task}
+
+    def result(self, task: _Task) -> dict:
+        return task.summary
+
+    def messages(self):
+        while self._inbox:
+            yield self._inbox.pop(0)
+
+    def abort(self) -> None:  # the run committed before it stopped
+        pass
+
+    def close(self) -> None:
+        pass
+
+
 def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[dict]:
     """Submit every run, collect them as they complete, keep the index and the progress."""
     summaries = []
+    if isinstance(backend, _InProcessBackend):
+        def live():
+            if _drain(backend.messages(), progress, states):
+                folder.write_index(states)  # live status sees the run as running
+
+        def start(run_id):
+            states.setdefault(run_id, {})["state"] = RunState.RUNNING.value
+            folder.write_index(states)
+
+        backend.on_message = live
+        backend.on_start = start
     try:
         futures = {backend.submit(args, r.run_id, folder.path): r for r in todo}
+        for order, fut in enumerate(futures):
+            if isinstance(fut, _Task):
+                fut.order = order
         for r in todo:
             states[r.run_id] = {"state": RunState.QUEUED.value}
         pending = set(futures)
