@@ -21,7 +21,7 @@ from pathlib import Path
 
 from foilmap._version import __version__
 from foilmap.errors import InputError
-from foilmap.report.study import LE_RADIUS_FLOOR, floor_warnings, runs_figure
+from foilmap.report.study import LE_RADIUS_FLOOR, floor_warnings, run_colours, runs_figure
 from foilmap.report.text import CAUTION, format_number, plural
 from foilmap.store.folder import StudyFolder, collect_fronts, is_multi_objective
 
@@ -169,19 +169,21 @@ def _designs(folder: StudyFolder) -> tuple[str, list[str]]:
         return ("<h3>Best designs</h3><p>No feasible design yet.</p>",
                 [f"no run of study {folder.study.name} has a feasible design yet"])
     warnings = []
-    colours = ["#1b4f72", "#b9770e", "#1e8449", "#7d3c98"]
+    colours = run_colours(folder.study)  # each run in the colour of the convergence figure
     shape = Figure(figsize=(10, 3.0))
     ax = shape.add_subplot(1, 1, 1)
     blocks = []
     for k, d in enumerate(designs):
-        col = colours[k % len(colours)]
+        col = colours.get(d.run_id, "#1b4f72")
+        # two designs of one run (ends and knee of a front): one colour, another line style
+        style = ("-", "--", "-.", ":")[sum(e.run_id == d.run_id for e in designs[:k]) % 4]
         cls = [d.design_cl]
         if d.run.point.cl_range is not None:
             cls += list(d.run.point.cl_range)
         an = analyse(d.section, cl=d.design_cl, proxies=("severity", "thwaites"))
         ev = an.evaluation
         zc, up, q = surface_distribution(an, 241)
-        ax.plot(zc[0].real, zc[0].imag, "-", color=col, lw=1.4, label=d.id)
+        ax.plot(zc[0].real, zc[0].imag, style, color=col, lw=1.4, label=d.id)
         cp_fig = Figure(figsize=(5.2, 3.3))
         axp = cp_fig.add_subplot(1, 1, 1)
         for j, c in enumerate(cls):

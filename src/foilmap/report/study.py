@@ -14,7 +14,7 @@ from foilmap.report.text import plural
 from foilmap.store.folder import StudyFolder, is_multi_objective
 
 __all__ = ["format_run_summary", "format_status", "damage_lines", "sharp_nose_warnings", "floor_warnings", "design_warnings",
-           "runs_figure", "plot_runs", "LE_RADIUS_FLOOR", "ON_FLOOR", "is_multi_objective"]
+           "runs_figure", "plot_runs", "run_colours", "RUN_PALETTE", "LE_RADIUS_FLOOR", "ON_FLOOR", "is_multi_objective"]
 
 
 def format_run_summary(study, out: Path, summaries: list[dict]) -> str:
@@ -136,6 +136,17 @@ def design_warnings(out: Path) -> list[str]:
     return sharp_nose_warnings(out) + floor_warnings(out)
 
 
+#: the colours of the runs, in the study's order (matplotlib's tab10, repeating)
+RUN_PALETTE = ("#1f77b4", "#ff7f0e", "#2ca02c", "#d62728", "#9467bd", "#8c564b", "#e377c2",
+               "#7f7f7f", "#bcbd22", "#17becf")
+
+
+def run_colours(study) -> dict[str, str]:
+    """One colour per run of ``study``, by its place in the study's run order: every figure of a
+    study (convergence, fronts, the designs of the report page) draws a run in its colour."""
+    return {r.run_id: RUN_PALETTE[i % len(RUN_PALETTE)] for i, r in enumerate(study.runs())}
+
+
 def _front_runs_figure(folder: StudyFolder):
     """Hypervolume history and final front of every run of a multi-objective study."""
     from matplotlib.figure import Figure
@@ -146,9 +157,10 @@ def _front_runs_figure(folder: StudyFolder):
     ax_h, ax_f = fig.subplots(1, 2)
     shown = 0
     names = None
+    colours = run_colours(folder.study)
     for r, log in folder.logged_runs():
         names = log.objective_names
-        colour = f"C{shown % 10}"
+        colour = colours[r.run_id]
         hv = log.gen.get("hypervolume")
         if hv is not None and np.isfinite(hv).any():
             ax_h.plot(log.gen["evaluations"], hv, lw=1.2, color=colour, label=r.run_id)
@@ -179,8 +191,9 @@ def _front_runs_figure(folder: StudyFolder):
 
 
 def runs_figure(out: Path, best_count: int = 4):
-    """A Figure of the convergence of every run, and the best sections with their Cp (for a
-    multi-objective study, the hypervolume history and the final fronts)."""
+    """A Figure of the convergence of every run, and below it the best sections directly above
+    their Cp on one chord axis (for a multi-objective study, the hypervolume history and the
+    final fronts).  Each run has its colour of :func:`run_colours` throughout."""
     from matplotlib.figure import Figure
 
     from foilmap.report.text import CAUTION
@@ -193,10 +206,13 @@ def runs_figure(out: Path, best_count: int = 4):
     if not any(log.best() is not None for _, log in folder.logged_runs()):
         raise InputError(f"no run of study {study.name!r} has a feasible design yet: nothing to "
                          f"plot (foilmap status {out} shows each run)")
-    fig = Figure(figsize=(11, 8.5))
-    ax_c = fig.add_subplot(2, 1, 1)
+    fig = Figure(figsize=(10, 11))
+    grid = fig.add_gridspec(3, 1, height_ratios=[1.0, 0.75, 1.0], hspace=0.08)
+    ax_c = fig.add_subplot(grid[0])
+    ax_s = fig.add_subplot(grid[1])
+    ax_p = fig.add_subplot(grid[2], sharex=ax_s)
     finals = []
-    colour = {r.run_id: f"C{i % 10}" for i, r in enumerate(study.runs())}  # one per run
+    colour = run_colours(study)
     for r, log in folder.logged_runs():
         e, b = log.gen["evaluations"], log.gen["best_f"]
         ok = np.isfinite(b)
@@ -213,28 +229,36 @@ def runs_figure(out: Path, best_count: int = 4):
     ax_c.set_title(f"study {study.name}: convergence of {plural(len(finals), 'run')}",
                    fontsize=10)
     if len(finals) <= 12:
-        ax_c.legend(fontsize=7, frameon=False, ncol=2)
-    ax_s = fig.add_subplot(2, 2, 3)
-    ax_p = fig.add_subplot(2, 2, 4)
-    for f, rid in sorted(finals)[:best_count]:
+        ax_c.legend(fontsize=7, frameon=True, framealpha=0.85, edgecolor="0.85",
+                    ncol=2 if len(finals) > 6 else 1, loc="upper right")
+    best = sorted(finals)[:best_count]
+    for f, rid in best:
         d = folder.best_design(rid)
         an = analyse(d.section, cl=d.design_cl, proxies=())
-        zc, up, q = surface_distribution(an, 201)
-        ax_s.plot(zc[0].real, zc[0].imag, lw=1.2, color=colour[rid], label=f"{rid}: {f:.4g}")
-        ax_p.plot(zc[0].real, 1 - q[0] ** 2, lw=1.0, color=colour[rid])
-    ax_s.set_aspect("equal")
-    ax_s.set_xlabel("x / chord")
-    ax_s.set_title("best sections", fontsize=10)
-    # the legend in the free space under the (flat, equal-aspect) section axes, in figure
-    # coordinates, so that it never covers the axis label
-    fig.legend(*ax_s.get_legend_handles_labels(), fontsize=7, frameon=False, ncol=2,
-               loc="lower left", bbox_to_anchor=(0.06, 0.06))
+        zc, up, q = surface_distribution(an, 241)
+        ax_s.plot(zc[0].real, zc[0].imag, lw=1.3, color=colour[rid], label=f"{rid}: {f:.4g}")
+        ax_p.plot(zc[0].real, 1 - q[0] ** 2, lw=1.2, color=colour[rid])
+    # equal scales by adjusting the y range (as foilmap plot does), so that the sections fill
+    # their panel's width and each suction peak sits over its place on the chord
+    ax_s.set_xlim(-0.05, 1.05)
+    ax_s.set_aspect("equal", adjustable="datalim")
+    ax_s.set_ylabel("y / chord")
+    ax_s.set_title(f"the best {plural(len(best), 'section')} (objective in the legend) and "
+                   "their Cp at the design Cl", fontsize=10)
+    ax_s.grid(True, color="0.9")
+    ax_s.tick_params(labelbottom=False)
+    ax_s.legend(fontsize=7.5, frameon=True, framealpha=0.85, edgecolor="0.85",
+                loc="upper right", ncol=2 if len(best) > 2 else 1)
     ax_p.invert_yaxis()
+    ax_p.axhline(0.0, color="0.6", lw=0.7)
     ax_p.set_xlabel("x / chord")
     ax_p.set_ylabel("Cp at the design Cl")
     ax_p.grid(True, color="0.9")
     fig.text(0.5, 0.01, CAUTION, ha="center", fontsize=7, color="0.3")
-    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    fig.subplots_adjust(left=0.09, right=0.97, top=0.96, bottom=0.06)
+    # the convergence plot keeps its own x axis: a gap under it for its label
+    pos = ax_c.get_position()
+    ax_c.set_position([pos.x0, pos.y0 + 0.04, pos.width, pos.height - 0.04])
     return fig
 
 
