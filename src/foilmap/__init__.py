@@ -60,6 +60,7 @@ _PUBLIC = {
     "StudyResults": "foilmap.api.studies",
     "RunResult": "foilmap.api.studies",
     "RunState": "foilmap.api.studies",
+    "RunsFailed": "foilmap.api.studies",
     "Study": "foilmap.design.study",
     "load_study": "foilmap.store.studyfile",
     "SectionSet": "foilmap.section.conformal",

@@ -39,6 +39,7 @@ from foilmap.api.studies import (
     FrontDesign,
     History,
     RunResult,
+    RunsFailed,
     RunState,
     StudyResults,
     open_results,
@@ -47,6 +48,6 @@ from foilmap.api.studies import (
 
 __all__ = ["evaluate", "sweep", "inverse", "fit", "screen", "coordinates", "export",
            "compare_fronts", "report_page", "status", "best_design", "pick", "as_section",
-           "run_study", "open_results", "StudyResults", "RunResult", "RunState", "History",
+           "run_study", "open_results", "StudyResults", "RunResult", "RunState", "RunsFailed", "History",
            "FrontDesign", "Evaluated", "Sweep", "InverseDesign", "Fitted", "Screening",
            "Exported", "FrontsComparison", "ReportPage"]
