@@ -254,3 +254,19 @@ def test_every_angle_is_in_degrees(files):
     kernel = analyse(foilmap.load_section(files["plain"]).to_set(),
                      alpha=math.radians(4.0))
     assert res.cl == pytest.approx(float(kernel.evaluation.cl[0]), rel=1e-12)
+
+
+def test_the_documented_section_example_runs(tmp_path, monkeypatch):
+    # docs/python-api.md's first example, executed as written (its figures are not asserted:
+    # the other tests of this file hold every call to its command)
+    import re
+    import shutil
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    code = re.findall(r"```python\n(.*?)```", (root / "docs" / "python-api.md").read_text(),
+                      flags=re.S)[0]
+    shutil.copytree(root / "studies", tmp_path / "studies")
+    monkeypatch.chdir(tmp_path)
+    exec(compile(code, "docs/python-api.md", "exec"), {"__name__": "example"})
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["studies"]  # nothing written
