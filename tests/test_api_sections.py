@@ -220,6 +220,21 @@ def test_bad_input_is_one_line():
         foilmap.evaluate(two[0], alpha=2.0, compressibility="magic")
     with pytest.raises(foilmap.InputError, match="out of range"):
         foilmap.fit([[1, 0], [0, 0]], n=0)
+    # the limits of the commands' options hold for the library's callers too
+    for kw, words in ((dict(alpha=4.0, points=5), "points = 5 is out of range"),
+                      (dict(alpha=float("nan")), "alpha = nan is out of range"),
+                      (dict(cl="a"), "cl = 'a' is not a number"),
+                      (dict(alpha=4.0, mach=1.5), "mach = 1.5 is out of range"),
+                      (dict(alpha=4.0, sigma=-1.0), "sigma = -1.0 is out of range"),
+                      (dict(alpha=4.0, reynolds=0.0), "reynolds = 0.0 is out of range")):
+        with pytest.raises(foilmap.InputError, match=words):
+            foilmap.evaluate(two[0], **kw)
+    with pytest.raises(foilmap.InputError, match="alpha = 40 is out of range"):
+        foilmap.sweep(two[0], alpha=[1, 40])
+    with pytest.raises(foilmap.InputError, match="a number or a list"):
+        foilmap.sweep(two[0], cl=[])
+    with pytest.raises(foilmap.InputError, match="n = 2.5 is not a whole number"):
+        foilmap.inverse("any.csv", cl=0.5, n=2.5)
 
 
 def test_fit_json_bad_input_is_one_line(tmp_path):

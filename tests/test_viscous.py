@@ -113,8 +113,10 @@ profile_drag = 1.0
     assert out.status.tolist() == [0, 0, 0]
     # the objective is the screening's Cd of the same sections at the design Cl
     an = analyse(prob.param.sections(x), cl=0.4)
-    np.testing.assert_allclose(out.objectives[:, 0], screen_analysis(an, 3e6, points=256).cd,
+    np.testing.assert_allclose(out.objectives[:, 0], screen_analysis(an, 3e6, samples=256).cd,
                                rtol=1e-12)
+    # drag of order 0.005-0.010 for smooth sections at this Re (common practice), widened for
+    # the perturbed shapes
     assert np.all((0.003 < out.objectives[:, 0]) & (out.objectives[:, 0] < 0.02))
     with pytest.raises(Exception, match="objective profile_drag needs 'reynolds'"):
         parse_study(text.replace("reynolds = 3.0e6\n", ""))

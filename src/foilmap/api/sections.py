@@ -78,13 +78,55 @@ def as_section(section) -> SectionRecord:
     return _resolve(section).record()
 
 
-def _operating_point(cl, alpha, what: str) -> dict:
-    """``cl`` or ``alpha`` (degrees) as the kernel's keywords (radians)."""
+def _number(what: str, name: str, value, lo: float | None = None, hi: float | None = None,
+            open_lo: bool = False, whole: bool = False) -> float:
+    """``value`` as a finite number in [lo, hi] (or (lo, hi]), else one line naming it."""
+    ok = isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
+    if ok and whole:
+        ok = math.isfinite(value) and float(value) == int(value)
+    if not ok:
+        raise InputError(f"{what}: {name} = {value!r} is not a {'whole ' if whole else ''}number")
+    v = float(value)
+    bad = not math.isfinite(v)
+    bad |= lo is not None and (v <= lo if open_lo else v < lo)
+    bad |= hi is not None and v > hi
+    if bad:
+        lo_s = "" if lo is None else (f"> {lo:g}" if open_lo else f">= {lo:g}")
+        hi_s = "" if hi is None else f"<= {hi:g}"
+        allowed = " and ".join(s for s in (lo_s, hi_s) if s) or "finite"
+        raise InputError(f"{what}: {name} = {value!r} is out of range (allowed: {allowed})")
+    return int(v) if whole else v
+
+
+def _operating_point(cl, alpha, what: str, alpha_limit: float = 89.0,
+                     cl_limit: float = 20.0) -> dict:
+    """``cl`` or ``alpha`` (degrees; a number, or a sequence for a sweep) as the kernel's
+    keywords (radians), checked as the commands check them."""
     if (cl is None) == (alpha is None):
         raise InputError(f"{what}: give exactly one of cl and alpha (degrees)")
-    if cl is not None:
-        return {"cl": cl}
-    return {"alpha": np.radians(alpha)}
+    name, value, limit = ("cl", cl, cl_limit) if cl is not None else ("alpha", alpha,
+                                                                      alpha_limit)
+    values = np.atleast_1d(np.asarray(value, dtype=object))
+    if values.ndim != 1 or values.size == 0:
+        raise InputError(f"{what}: {name} must be a number or a list of numbers")
+    checked = np.array([_number(what, name, v, -limit, limit) for v in values])
+    out = checked if np.ndim(value) else checked[0]
+    return {"cl": out} if name == "cl" else {"alpha": np.radians(out)}
+
+
+def _conditions(what: str, points=None, reynolds=None, mach=None, sigma=None,
+                proxy_end=None) -> None:
+    """The options the commands check, checked alike for the library's callers."""
+    if points is not None:
+        _number(what, "points", points, 32, 65536, whole=True)
+    if reynolds is not None:
+        _number(what, "reynolds", reynolds, 0.0, 1e10, open_lo=True)
+    if mach is not None:
+        _number(what, "mach", mach, 0.0, 0.95)
+    if sigma is not None:
+        _number(what, "sigma", sigma, 0.0, 1e6, open_lo=True)
+    if proxy_end is not None:
+        _number(what, "proxy_end", proxy_end, 0.0, 1.0, open_lo=True)
 
 
 def _analyse(sec: _Section, cl, alpha, what: str, **kw):
@@ -198,6 +240,7 @@ def evaluate(section, *, alpha: float | None = None, cl: float | None = None,
     if compressibility not in RULES:
         raise InputError(f"compressibility rule {compressibility!r} is not one of "
                          f"{', '.join(RULES)}")
+    _conditions("evaluate", points, reynolds, mach, sigma, proxy_end)
     sec = _resolve(section, "evaluate")
     proxies = ("severity", "thwaites") + (("stratford",) if reynolds is not None else ())
     an = _analyse(sec, cl, alpha, "evaluate", points=points, proxies=proxies,
@@ -265,8 +308,9 @@ def sweep(section, *, alpha=None, cl=None, mach: float | None = None,
     if compressibility not in RULES:
         raise InputError(f"compressibility rule {compressibility!r} is not one of "
                          f"{', '.join(RULES)}")
+    _conditions("sweep", points, None, mach, sigma)
     sec = _resolve(section, "sweep")
-    kw = _operating_point(cl, alpha, "sweep")
+    kw = _operating_point(cl, alpha, "sweep", alpha_limit=30.0, cl_limit=5.0)
     res = sweep_kernel(sec.sections, mach=mach, rule=compressibility,
                        reference_le=sec.reference_le, points=points, **kw)
     rows = sweep_rows(res, sigma)
@@ -327,15 +371,15 @@ def inverse(target, *, cl: float | None = None, alpha: float | None = None,
     from foilmap.section.inverse import Target, inverse_section
     from foilmap.store.targetfile import load_target
 
-    te_angle = 10.0 if te_angle is None else te_angle
-    n = 24 if n is None else n
+    te_angle = _number("inverse", "te_angle", 10.0 if te_angle is None else te_angle, 0.0, 60.0)
+    n = _number("inverse", "n", 24 if n is None else n, 1, 64, whole=True)
     if isinstance(target, Target):
         source, tgt = "<target>", target
         name = name or "inverse"
     else:
         source, tgt = str(target), load_target(target)
         name = name or Path(target).stem
-    kw = _operating_point(cl, alpha, "inverse")
+    kw = _operating_point(cl, alpha, "inverse", alpha_limit=30.0, cl_limit=5.0)
     res = inverse_section(tgt, te_angle=math.radians(te_angle), coefficients=n, **kw)
     rec = inverse_record(res, name)
     if not (math.isfinite(res.rms_deviation) and math.isfinite(res.cl)) \
@@ -393,8 +437,7 @@ def fit(coords, *, n: int = 24, name: str | None = None) -> Fitted:
     from foilmap.section.fitting import fit_section
     from foilmap.store.coordfile import Coordinates, load_coordinates, normalise_loop
 
-    if not (isinstance(n, (int, np.integer)) and 1 <= n <= 64):
-        raise InputError(f"fit: n = {n!r} is out of range (allowed: 1 to 64 coefficients)")
+    n = _number("fit", "n", n, 1, 64, whole=True)
     if isinstance(coords, Coordinates):
         c, source = coords, coords.name or "<coordinates>"
     elif isinstance(coords, (str, os.PathLike)):
@@ -446,8 +489,8 @@ def screen(section, *, reynolds: float, cl: float | None = None, alpha: float | 
     from foilmap.report.text import CAUTION
     from foilmap.section.screening import DRAG_STATION, screen_analysis
 
-    if not (isinstance(reynolds, (int, float)) and math.isfinite(reynolds) and reynolds > 0):
-        raise InputError(f"screen: reynolds = {reynolds!r} must be a positive number")
+    _number("screen", "reynolds", reynolds, 1e4, 1e9)
+    _conditions("screen", points)
     sec = _resolve(section, "screen")
     an = _analyse(sec, cl, alpha, "screen", points=points, proxies=())
     _check_ok(sec.name, an)
@@ -466,6 +509,7 @@ def coordinates(section, *, points: int = 201, spacing: str = "cosine") -> np.nd
     from foilmap.section.evaluation import analyse
     from foilmap.section.geometry import coordinates as contour
 
+    points = _number("coords", "points", points, 5, 100001, whole=True)
     if spacing not in ("cosine", "map"):
         raise InputError(f"coords: spacing {spacing!r} is not one of: cosine, map")
     sec = _resolve(section, "coords")
@@ -512,6 +556,14 @@ def export(selection, output, *, cl: float | None = None, alpha: float | None = 
         raise InputError(f"export: folder {str(out.parent)!r} does not exist")
     if cl is not None and alpha is not None:
         raise InputError("export: give cl or alpha, not both")
+    if cl is not None:
+        _number("export", "cl", cl, -20.0, 20.0)
+    if alpha is not None:
+        _number("export", "alpha", alpha, -89.0, 89.0)
+    if reynolds is not None:
+        _number("export", "reynolds", reynolds, 1e4, 1e9)
+    _number("export", "points", points, 11, 100001, whole=True)
+    _number("export", "te_thickness", te_thickness, 0.0, 0.05)
     if spacing not in SPACINGS:
         raise InputError(f"export: spacing {spacing!r} is not one of {', '.join(SPACINGS)}")
     if mesh:
