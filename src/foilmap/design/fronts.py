@@ -10,7 +10,13 @@ from __future__ import annotations
 import numpy as np
 
 __all__ = ["FrontError", "nondominated_mask", "merge_archive", "hypervolume",
-           "epsilon_additive", "median_attainment", "knee_index"]
+           "epsilon_additive", "median_attainment", "knee_index", "is_multi_objective"]
+
+
+def is_multi_objective(study) -> bool:
+    """Whether a study's runs search Pareto fronts (COMO-CMA-ES or ε-constraint sweeps) rather
+    than one best design (a :class:`~foilmap.design.study.Study`)."""
+    return any(r.search["method"] != "cmaes" for r in study.runs())
 
 
 class FrontError(ValueError):

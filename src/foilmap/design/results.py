@@ -61,6 +61,15 @@ class RunState(str, Enum):
         return _LOG_CODES[self]
 
     @classmethod
+    def parse(cls, value, default: "RunState") -> "RunState":
+        """The state named ``value`` (an index entry's ``state``), or ``default`` for a value
+        that names none (an index written by another version)."""
+        try:
+            return cls(value)
+        except ValueError:
+            return default
+
+    @classmethod
     def from_code(cls, code: int) -> "RunState":
         """The state a run log's ``meta/state`` code stands for (UNREADABLE for an unknown one)."""
         return {c: s for s, c in _LOG_CODES.items()}.get(int(code), cls.UNREADABLE)

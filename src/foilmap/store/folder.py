@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from foilmap._version import __version__
-from foilmap.design.fronts import merge_archive
+from foilmap.design.fronts import is_multi_objective, merge_archive  # re-exported
 from foilmap.design.results import FolderDesign, RunState
 from foilmap.design.study import Parametrisation, RunSpec, Study
 from foilmap.errors import InputError
@@ -40,11 +40,6 @@ OPTIONS_NAME = "options.json"
 #: what the index keeps of a finished run (so that status need not open complete logs)
 INDEXED = ("state", "generations", "evaluations", "best", "best_objectives", "resumes",
            "elapsed_s", "hypervolume", "rejected")
-
-
-def is_multi_objective(study: Study) -> bool:
-    """Whether the study's runs search Pareto fronts (COMO-CMA-ES or ε-constraint sweeps)."""
-    return any(r.search["method"] != "cmaes" for r in study.runs())
 
 
 def log_summary(run_id: str, log: RunLog) -> dict:
@@ -263,8 +258,7 @@ class StudyFolder:
             return RunState.COMPLETE
         if indexed in (RunState.PENDING.value, RunState.QUEUED.value, RunState.COMPLETE.value):
             return RunState.UNFINISHED
-        return RunState(indexed) if indexed in RunState._value2member_map_ else \
-            RunState.UNFINISHED
+        return RunState.parse(indexed, RunState.UNFINISHED)
 
     # --- designs -------------------------------------------------------------------------
 
