@@ -364,3 +364,54 @@ def test_a_search_that_finds_a_needle_nose_says_so(tmp_path):
     r = cli("run", study, "--out", tmp_path / "out2", "--workers", "1")
     assert r.returncode == 0, r.stderr
     assert not any(line.startswith("warning:") for line in r.stdout.splitlines())
+
+
+# --- the section layer's one entry point of search-time evaluation --------------------------------
+
+
+@pytest.mark.parametrize("kind", ["ordinary", "symmetric"])
+def test_search_figures_routes_agree(kind):
+    from foilmap.section.evaluation import search_figures
+
+    sec = _family(kind, nb=24)
+    cls = CLS[kind][0]
+    kw = dict(proxies=("severity", "thwaites", "stratford"), reynolds=1e6,
+              stations=[0.3, 0.9], floor=0.002)
+    comp = search_figures(sec, cls, design_peak=True, **kw)
+    ref = search_figures(sec, cls, route="reference", **kw)
+    assert comp.analysis is None and ref.analysis is not None
+    np.testing.assert_array_equal(comp.evaluation.status, ref.evaluation.status)
+    ok = comp.evaluation.ok
+    assert ok.sum() > 10
+    np.testing.assert_allclose(comp.peak[ok], ref.peak[ok], rtol=1e-9)
+    np.testing.assert_allclose(comp.station_thickness[ok], ref.station_thickness[ok],
+                               atol=1e-12)
+    for name in ("cl", "alpha", "cm_quarter_chord", "cp_min", "thickness", "le_radius",
+                 "floor_margin"):
+        np.testing.assert_allclose(getattr(comp.evaluation, name)[ok],
+                                   getattr(ref.evaluation, name)[ok], rtol=1e-9, atol=1e-12,
+                                   err_msg=name)
+    # without the design Cl's own peak the compiled route certifies only the largest one
+    fast = search_figures(sec, cls, **kw)
+    np.testing.assert_array_equal(fast.peak, comp.peak)
+    assert np.isnan(fast.evaluation.cp_min).all()
+    # the kernel's own call, for the record: the same arrays
+    status, fig, peaks, st = search_batch(sec.coefficients, sec.te_angle, np.array(cls), 256,
+                                          0.95, 0.02, 0.9, np.array([0.3, 0.9]), 7, 1e6, 1e-7,
+                                          False, 0.002)
+    np.testing.assert_array_equal(fast.evaluation.status, status)
+    np.testing.assert_array_equal(fast.peak, peaks)
+    np.testing.assert_array_equal(fast.station_thickness, st)
+    with pytest.raises(ValueError, match="route"):
+        search_figures(sec, cls, route="fast")
+
+
+def test_design_calls_no_kernel():
+    # the search's figures come through the section layer's entry point, never a private kernel
+    from pathlib import Path
+
+    import foilmap.design as design
+
+    for path in Path(design.__file__).parent.glob("*.py"):
+        text = path.read_text(encoding="utf-8")
+        assert "_compiled" not in text and "search_batch" not in text, path.name

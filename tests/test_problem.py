@@ -79,7 +79,7 @@ def test_invalid_candidates_rank_behind_every_valid_one():
 
 def test_an_epsilon_run_bounds_its_second_objective():
     prob = problem(extra="[fronts]\nreference_point = [3.0, 3.0]\n")
-    prob = Problem(prob.param, prob.point, prob.objectives, prob.constraints, prob.points,
+    prob = Problem(prob.param, prob.point, prob.objectives, prob.constraints, prob.samples,
                    prob.proxy_end, epsilon=0.4, reference_point=prob.reference_point)
     assert prob.constraint_names[-1] == "epsilon_severity"
     assert prob.constraint_scales[-1] == pytest.approx(max(0.05 * 0.4, 1e-3))

@@ -14,10 +14,7 @@ from functools import cached_property
 import numpy as np
 
 from foilmap.design.study import Parametrisation, Point, RunSpec, Study
-from foilmap.section import _compiled
-from foilmap.section.conformal import DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN
-from foilmap.section.evaluation import Evaluation, analyse
-from foilmap.section.geometry import exact_points_at_x
+from foilmap.section.evaluation import PROXIES, Evaluation, search_figures
 from foilmap.section.operating import compressible_cp, critical_mach
 from foilmap.section.status import Status
 
@@ -49,7 +46,7 @@ class Problem:
     point: Point
     objectives: tuple[tuple[str, float], ...]
     constraints: dict
-    points: int
+    samples: int  # circle samples per section (the study's ``search.points``)
     proxy_end: float
     epsilon: float | None = None  # ε-constraint run: objective 2 ≤ ε, minimise objective 1
     reference_point: tuple[float, ...] | None = None
@@ -148,15 +145,12 @@ class Problem:
         return np.array(out)
 
     def _proxies(self) -> tuple[str, ...]:
-        names = self.objective_names
-        p = []
-        if "severity" in names:
-            p.append("severity")
-        if "laminar_deficit" in names:
-            p.append("thwaites")
-        if "stratford_margin" in names:
-            p.append("stratford")
-        return tuple(p)
+        """The proxies the objectives need, in :data:`~foilmap.section.evaluation.PROXIES`
+        order."""
+        needs = {"severity": "severity", "laminar_deficit": "thwaites",
+                 "stratford_margin": "stratford"}
+        wanted = {needs[n] for n in self.objective_names if n in needs}
+        return tuple(p for p in PROXIES if p in wanted)
 
     @property
     def floor(self) -> float:
@@ -176,11 +170,10 @@ class Problem:
 
     def evaluate_sections(self, sec) -> Outcome:
         """Objectives and constraints of a batch of sections (a ``SectionSet``)."""
-        if {"profile_drag", "target_cp_rms"} & set(self.objective_names):
-            ev, peak, st, extra = self._evaluate_reference(sec)
-        else:
-            ev, peak, st = self._evaluate_compiled(sec)
-            extra = {}
+        reference = bool({"profile_drag", "target_cp_rms"} & set(self.objective_names))
+        figs = self.search_figures(sec, route="reference" if reference else "compiled")
+        ev, peak, st = figs.evaluation, figs.peak, figs.station_thickness
+        extra = self._reference_objectives(figs.analysis) if reference else {}
         status = ev.status.copy()
         obj = np.stack([extra[n] if n in extra else self._objective(n, ev, peak)
                         for n, _ in self.objectives], axis=1)
@@ -218,72 +211,37 @@ class Problem:
             return 1.0 - self.critical_mach(peak)
         return getattr(ev, name)  # severity, stratford_margin, area
 
-    def _evaluate_compiled(self, sec):
-        """The compiled kernel: every figure, the largest peak suction over the Cls of the
-        point (certified; not the design Cl's own, which the search does not use) and the exact
-        station thickness in one pass per section."""
-        want = sum(bit for name, bit in (("severity", 1), ("thwaites", 2), ("stratford", 4))
-                   if name in self._proxies())
-        status, fig, peaks, st = _compiled.search_batch(
-            np.ascontiguousarray(sec.coefficients), np.ascontiguousarray(sec.te_angle),
-            np.array(self.point.cls, dtype=float), int(self.points),
-            1.0 - DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN, float(self.proxy_end),
-            self.stations, want, float(self.point.reynolds or 0.0), _compiled.PEAK_TOLERANCE,
-            False,  # the largest peak over the Cls is all a search uses
-            self.floor)
-        ev = Evaluation.from_figures(status, fig)
-        return ev, peaks, st
+    def search_figures(self, sec, route: str = "compiled"):
+        """The section layer's search-time figures of a batch at this run's point
+        (:func:`foilmap.section.evaluation.search_figures`): the design Cl's figures, the
+        largest peak suction over the point's Cls (certified; a search needs no more, so the
+        design Cl's own peak is asked for only on the reference route, which has it anyway)
+        and the exact station thickness."""
+        return search_figures(
+            sec, self.point.cls, samples=self.samples, proxies=self._proxies(),
+            reynolds=self.point.reynolds, proxy_end=self.proxy_end, stations=self.stations,
+            floor=self.floor, design_peak=False, route=route)
 
-    def _evaluate_reference(self, sec):
-        """The numpy reference pipeline, for objectives the compiled kernel does not have
-        (the boundary-layer screening's profile drag)."""
+    def _reference_objectives(self, an) -> dict:
+        """Objectives only the numpy reference computes, from its analysis: the boundary-layer
+        screening's profile drag and a target's Cp deviation."""
         from foilmap.section.screening import screen_analysis
 
-        an = analyse(sec, cl=self.point.cl, points=self.points, proxies=self._proxies(),
-                     reynolds=self.point.reynolds, proxy_end=self.proxy_end, floor=self.floor)
-        ev = an.evaluation
-        status = ev.status.copy()
-        peak = -ev.cp_min
-        for cl in self.point.cls[1:]:
-            other, stc = an.peak_suction_at(cl)
-            status = np.where(status == Status.OK, stc, status).astype(np.int8)
-            peak = np.fmax(peak, other)
-        xs = self.stations
-        if xs.size:
-            with np.errstate(all="ignore"):
-                zu = exact_points_at_x(sec, an.frame, an.split, -xs)
-                zl = exact_points_at_x(sec, an.frame, an.split, xs)
-            st = zu.imag - zl.imag
-        else:
-            st = np.zeros((len(sec), 0))
         extra = {}
         if "profile_drag" in self.objective_names:
             # the screening on the search's own circle grid (exact speeds at its samples)
             extra["profile_drag"] = screen_analysis(an, self.point.reynolds,
-                                                    points=self.points).cd
+                                                    samples=self.samples).cd
         if "target_cp_rms" in self.objective_names:
             extra["target_cp_rms"] = self.target_cp_rms(an)
-        from dataclasses import replace
-
-        return replace(ev, status=status), peak, st, extra
+        return extra
 
     def target_cp_rms(self, an) -> np.ndarray:
         """RMS of the exact Cp minus the point's target at the target's stations (those
         outside the trailing-edge zone), shape (B,)."""
-        from foilmap.section.evaluation import speed_at_stations
-        from foilmap.section.inverse import TE_ZONE
+        from foilmap.section.inverse import target_cp_rms
 
-        x, upper, cp = (np.asarray(v) for v in self.point.target)
-        read = x <= TE_ZONE
-        dev = []
-        for side, name in ((True, "upper"), (False, "lower")):
-            m = read & (upper == side)
-            if m.any():
-                with np.errstate(all="ignore"):
-                    q = speed_at_stations(an, x[m], name)
-                dev.append((1.0 - q * q) - cp[m][None, :])
-        d = np.concatenate(dev, axis=1)
-        return np.sqrt(np.mean(d * d, axis=1))
+        return target_cp_rms(an, *self.point.target)
 
     def _constraints(self, ev, st, peak) -> np.ndarray:
         cols = [fn(ev, st, peak) for _, _, fn in self._specs]

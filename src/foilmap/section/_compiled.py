@@ -28,6 +28,7 @@ import numpy as np
 
 from foilmap.section._kbounds import _arc_bounds, _prepare, _workspace
 from foilmap.section._kconst import (
+    DEFAULT_PROXY_END,
     FIGURES,
     FLOOR_BETWEEN,
     FLOOR_END,
@@ -74,11 +75,14 @@ def warm_up() -> None:
     code from the cache instead of each compiling it (about half a minute the first time after
     an install).
     """
+    from foilmap.section.conformal import DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN
+
     a = np.array([[-0.08 + 0.04j, 0.004 - 0.003j]])
     tau = np.array([0.17])
-    validity_batch(a, tau, 64, 0.95, 0.02, 0.005)
+    radius = 1.0 - DEFAULT_CRITICAL_MARGIN
+    validity_batch(a, tau, 64, radius, DEFAULT_SINGULAR_MARGIN, 0.005)
     peak_batch(a, tau, np.array([0.05]), 64, PEAK_TOLERANCE)
-    critical_batch(a, 0.95)
+    critical_batch(a, radius)
     for design_peak in (True, False):  # the forms commands and searches call
-        search_batch(a, tau, np.array([0.5]), 64, 0.95, 0.02, 0.9, np.zeros(0), 0, 0.0,
-                     PEAK_TOLERANCE, design_peak, 0.005)
+        search_batch(a, tau, np.array([0.5]), 64, radius, DEFAULT_SINGULAR_MARGIN,
+                     DEFAULT_PROXY_END, np.zeros(0), 0, 0.0, PEAK_TOLERANCE, design_peak, 0.005)

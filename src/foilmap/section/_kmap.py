@@ -151,12 +151,19 @@ _D_LN_DIST_TE = 1  # d ln|z − k|/dφ (the leading edge, farthest from the trai
 
 
 @kernel
+def _dlnq(phi, alpha_c, q2):
+    """d ln q/dφ on the circle at φ for the circle-plane angle α', where ζ z''/z' = q2:
+    d ln|w|/dφ = cos(φ − α')/(sin(φ − α') + sin α') and d ln|z'|/dφ = −Im(ζ z''/z') (the
+    compiled form of :func:`foilmap.section.flow.speed_log_derivative`)."""
+    return math.cos(phi - alpha_c) / (math.sin(phi - alpha_c) + math.sin(alpha_c)) + q2.imag
+
+
+@kernel
 def _deriv(kind, a, a0, k, phi, param):
     """One of the analytic derivatives along the circle, at φ."""
     g, e, h, z, dz, q2 = map_point(a, a0, k, phi)
     if kind == _D_LNQ:
-        s = math.sin(phi - param) + math.sin(param)
-        return math.cos(phi - param) / s + q2.imag
+        return _dlnq(phi, param, q2)
     zeta = complex(math.cos(phi), math.sin(phi))
     return -(zeta * dz / (z - k)).imag
 

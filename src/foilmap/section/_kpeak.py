@@ -12,7 +12,9 @@ from foilmap.section._kcache import kernel
 from foilmap.section._kconst import (
     _BUDGET, C_GDTE, C_L1, C_L2, C_MM, C_OMH1, _INF, _STACK, _TWO_PI,
 )
-from foilmap.section._kmap import _D_LNQ, _deriv, _grid_phi, _illinois, _map_zeta, _speed
+from foilmap.section._kmap import (
+    _D_LNQ, _deriv, _dlnq, _grid_phi, _illinois, _map_zeta, _speed,
+)
 from foilmap.section._kbounds import _prepare, _split_arc_bounds
 
 
@@ -54,7 +56,7 @@ def _arc_speed_bound(zmin, kz, q2, q, phi, delta, u, alpha_c):
         g2 = (-sn * s - c * c) / (s * s)
         k3 = (1.0 + (3.0 + 2.0 / smin) / smin) / smin
         m = min(kw, g2 + delta * k3) + kz
-        ad = abs(c / s + q2.imag)
+        ad = abs(_dlnq(phi, alpha_c, q2))
         # the largest of d t + m t²/2 over |t| ≤ δ
         if m >= 0.0 or ad >= -m * delta:
             ex = ad * delta + 0.5 * m * delta * delta

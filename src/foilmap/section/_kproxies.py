@@ -13,6 +13,7 @@ from foilmap.section._kconst import (
     _INF, PROXY_CLOSE_LIMIT, TRAILING_EDGE_SPEED, _TWO_PI, WANT_SEVERITY, WANT_STRATFORD,
     WANT_THWAITES,
 )
+from foilmap.section._kmap import _dlnq
 
 
 @kernel
@@ -189,7 +190,7 @@ def _proxies(phis, zs, dzs, q2s, z_le, scale, chord, u, alpha_c, proxy_end, want
         ds[j] = abs(dzs[j]) / chord
         s_ = math.sin(phis[j] - alpha_c) + sa
         q[j] = 2.0 * u * abs(s_) / abs(dzs[j])
-        grad[j] = q[j] * (math.cos(phis[j] - alpha_c) / s_ + q2s[j].imag) / ds[j]
+        grad[j] = q[j] * _dlnq(phis[j], alpha_c, q2s[j]) / ds[j]
         x[j] = ((zs[j] - z_le) * scale).real
         acc += ds[j]
         arc[j] = h * (acc - 0.5 * ds[j] - 0.5 * ds[0])

@@ -206,16 +206,16 @@ class CircleGrid:
     """Uniform circle-plane sampling, offset by half a step so that ζ = 1 (the TE) is avoided.
 
     φⱼ = (j + ½) 2π/P, j = 0..P−1.  Powers ζ⁻ⁿ are precomputed for ``n_max`` coefficients.
-    Grids are immutable and cached: ``CircleGrid.get(points, n_max)``.
+    Grids are immutable and cached: ``CircleGrid.get(samples, n_max)``.
     """
 
-    __slots__ = ("points", "n_max", "step", "phi", "zeta", "powers", "cos", "sin")
+    __slots__ = ("samples", "n_max", "step", "phi", "zeta", "powers", "cos", "sin")
 
-    def __init__(self, points: int, n_max: int) -> None:
-        self.points = int(points)
+    def __init__(self, samples: int, n_max: int) -> None:
+        self.samples = int(samples)
         self.n_max = int(n_max)
-        self.step = 2.0 * np.pi / self.points
-        self.phi = (np.arange(self.points) + 0.5) * self.step
+        self.step = 2.0 * np.pi / self.samples
+        self.phi = (np.arange(self.samples) + 0.5) * self.step
         self.zeta = np.exp(1j * self.phi)
         n = np.arange(1, self.n_max + 1)
         self.powers = np.exp(-1j * np.outer(n, self.phi))  # (N, P): ζ⁻ⁿ
@@ -226,8 +226,8 @@ class CircleGrid:
 
     @staticmethod
     @lru_cache(maxsize=32)
-    def get(points: int, n_max: int) -> "CircleGrid":
-        return CircleGrid(points, n_max)
+    def get(samples: int, n_max: int) -> "CircleGrid":
+        return CircleGrid(samples, n_max)
 
 
 def _weighted(coefficients: np.ndarray) -> np.ndarray:

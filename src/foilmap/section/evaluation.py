@@ -13,6 +13,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from foilmap.section import _compiled
+from foilmap.section._kconst import (
+    DEFAULT_PROXY_END,
+    FIGURES,
+    PROXY_BITS,
+    PROXY_CLOSE_LIMIT,
+    TRAILING_EDGE_SPEED,
+)
 from foilmap.section.conformal import (
     DEFAULT_CRITICAL_MARGIN,
     DEFAULT_SINGULAR_MARGIN,
@@ -39,6 +46,7 @@ from foilmap.section.geometry import (
     coordinates,
     section_geometry,
     split_surfaces,
+    station_thickness,
 )
 from foilmap.section.proxies import recovery_severity, stratford, thwaites
 from foilmap.section.status import Status
@@ -47,23 +55,22 @@ from foilmap.section.surfaces import surfaces_from_stagnation
 __all__ = [
     "Evaluation",
     "Analysis",
+    "SearchFigures",
     "evaluate",
     "analyse",
+    "search_figures",
     "surface_distribution",
-    "speed_at_stations", "surfaces_on_grid", "DEFAULT_POINTS", "DEFAULT_PROXY_END", "PROXIES"]
+    "speed_at_stations", "surfaces_on_grid", "DEFAULT_SAMPLES", "DEFAULT_POINTS",
+    "DEFAULT_PROXY_END", "TRAILING_EDGE_SPEED", "PROXIES", "ROUTES"]
 
 #: circle-plane samples per section in searches (peak suction is refined beyond the grid)
-DEFAULT_POINTS = 256
-#: the proxies stop at this chord station: the ideal flow's stagnation at a finite-angle trailing
-#: edge is removed in real flow by the boundary layer's displacement (common practice in
-#: inviscid screening), and every gradient proxy diverges there
-DEFAULT_PROXY_END = 0.9
-#: speed ratio a real trailing-edge flow recovers to, q/V∞ = 0.95 (Cp_TE ≈ 0.1: common practice
-#: for attached sections, value from memory); the proxies charge any recovery still owed at
-#: ``proxy_end`` down to it, so that a search cannot hide a recovery behind the end station
-TRAILING_EDGE_SPEED = 0.95
+DEFAULT_SAMPLES = 256
+#: the former name of :data:`DEFAULT_SAMPLES`
+DEFAULT_POINTS = DEFAULT_SAMPLES
 #: proxy names accepted by :func:`evaluate`
-PROXIES = ("severity", "thwaites", "stratford")
+PROXIES = tuple(name for name, _ in PROXY_BITS)
+#: the two routes of :func:`search_figures`: the compiled kernel and the numpy reference
+ROUTES = ("compiled", "reference")
 
 
 @dataclass(frozen=True)
@@ -111,9 +118,7 @@ class Evaluation:
     @classmethod
     def from_figures(cls, status: np.ndarray, figures: np.ndarray) -> "Evaluation":
         """From the compiled kernel's output: status (B,) and figures (B, F) in the order of
-        :data:`foilmap.section._compiled.FIGURES`."""
-        from foilmap.section._compiled import FIGURES
-
+        :data:`foilmap.section._kconst.FIGURES`."""
         cols = {name: figures[:, i].copy() for i, name in enumerate(FIGURES)}
         cols["cp_min_upper"] = cols["cp_min_upper"] == 1.0
         return cls(status=status.astype(np.int8), **cols)
@@ -175,7 +180,7 @@ class Analysis:
                           self.evaluation.status).astype(np.int8)
         with np.errstate(all="ignore"):
             q_pk, _, cert = certified_peak(self.sections, _valid_only(fl, status),
-                                           self.grid.points)
+                                           self.grid.samples)
         status = np.where((status == Status.OK) & ~cert, Status.UNCERTIFIED,
                           status).astype(np.int8)
         peak = np.where(status == Status.OK, q_pk**2 - 1.0, np.nan)
@@ -187,7 +192,7 @@ def analyse(
     *,
     cl=None,
     alpha=None,
-    points: int = DEFAULT_POINTS,
+    samples: int = DEFAULT_SAMPLES,
     proxies: tuple[str, ...] = ("severity",),
     reynolds: float | None = None,
     proxy_end: float = DEFAULT_PROXY_END,
@@ -195,6 +200,7 @@ def analyse(
     singular_margin: float = DEFAULT_SINGULAR_MARGIN,
     reference_le=None,
     floor: float = 0.0,
+    points: int | None = None,
 ) -> Analysis:
     """Evaluate a batch of sections at a target Cl or at an angle of attack.
 
@@ -206,8 +212,8 @@ def analyse(
         Target lift coefficient, met exactly by the closed-form angle.
     alpha : float or ndarray (B,), optional
         Angle of attack to the chord line in radians (exactly one of ``cl`` and ``alpha``).
-    points : int
-        Circle-plane samples per section.
+    samples : int
+        Circle-plane samples per section (``points``, its former name, is still accepted).
     proxies : tuple of str
         Recovery proxies to compute, from :data:`PROXIES`; ``stratford`` needs ``reynolds``.
     reynolds : float, optional
@@ -230,12 +236,14 @@ def analyse(
     if "stratford" in proxies and reynolds is None:
         raise ValueError("the stratford proxy needs a Reynolds number")
     nb = len(sections)
-    grid = CircleGrid.get(points, max(sections.n_coefficients, 1))
+    if points is not None:
+        samples = points
+    grid = CircleGrid.get(samples, max(sections.n_coefficients, 1))
     with np.errstate(all="ignore"):
         # validity certified between samples (the compiled checks: critical points, star shape,
         # the second singular point, a simple contour, single-valued surfaces)
         status, floor_margin = _compiled.validity_batch(
-            np.ascontiguousarray(sections.coefficients), sections.te_angle, points,
+            np.ascontiguousarray(sections.coefficients), sections.te_angle, samples,
             1.0 - critical_margin, singular_margin, float(floor))
         mv = map_on_grid(sections, grid)
         frame = chord_frame(sections, mv, grid)
@@ -250,7 +258,7 @@ def analyse(
         )
         status = np.where(status == Status.OK, flow.status, status).astype(np.int8)
         q = surface_speed(flow, mv, grid)
-        q_pk, phi_pk, certified = certified_peak(sections, _valid_only(flow, status), points)
+        q_pk, phi_pk, certified = certified_peak(sections, _valid_only(flow, status), samples)
         status = np.where((status == Status.OK) & ~certified, Status.UNCERTIFIED,
                           status).astype(np.int8)
         phi_pk = np.where(np.isfinite(phi_pk), phi_pk, 0.0)
@@ -268,7 +276,7 @@ def analyse(
             # slightly above free stream: the recovery still owed at the end station is charged
             # to reach the lowest of the two end speeds and TRAILING_EDGE_SPEED
             u_te = np.minimum(np.minimum(ends[0][1], ends[1][1]), TRAILING_EDGE_SPEED)
-            closing = [None, None] if proxy_end >= 0.999 else [
+            closing = [None, None] if proxy_end >= PROXY_CLOSE_LIMIT else [
                 (e[0], e[1], sf.s_te, u_te) for e, sf in zip(ends, (upper, lower))]
             if "severity" in proxies:
                 severity = np.maximum(
@@ -337,6 +345,81 @@ def _valid_only(flow: FlowState, status: np.ndarray) -> FlowState:
     return replace(flow, alpha_circle=np.where(status == Status.OK, flow.alpha_circle, np.nan))
 
 
+@dataclass(frozen=True)
+class SearchFigures:
+    """What a search needs of a batch of sections at one operating point.
+
+    ``evaluation`` holds the figures at the design Cl (the first of ``cls``), its status
+    covering every Cl of the point; ``peak`` (B,) is the largest peak suction −Cp_min over the
+    Cls (certified); ``station_thickness`` (B, M) the exact thickness at the chord stations
+    asked for.  ``analysis`` is the reference route's :class:`Analysis` (None on the compiled
+    route), for figures beyond these (the screening's drag, a target's Cp).
+    """
+
+    evaluation: Evaluation
+    peak: np.ndarray
+    station_thickness: np.ndarray
+    analysis: Analysis | None = None
+
+
+def search_figures(
+    sections: SectionSet,
+    cls,
+    *,
+    samples: int = DEFAULT_SAMPLES,
+    proxies: tuple[str, ...] = ("severity",),
+    reynolds: float | None = None,
+    proxy_end: float = DEFAULT_PROXY_END,
+    stations=(),
+    floor: float = 0.0,
+    design_peak: bool = False,
+    route: str = "compiled",
+) -> SearchFigures:
+    """Figures of a batch of sections over the lift coefficients ``cls`` (the design Cl first,
+    then the other Cls of the point, whose peaks count): the one entry point of search-time
+    evaluation, with both routes behind it.
+
+    ``route="compiled"``: the numba kernel (:func:`foilmap.section._compiled.search_batch`), one
+    pass per section; without ``design_peak`` only the largest peak over the Cls is certified,
+    and the design Cl's own peak figures (``cp_min``, ``cp_min_x``, ``cp_min_upper``) are NaN.
+    ``route="reference"``: :func:`analyse` at the design Cl and the peak at each other Cl
+    (:meth:`Analysis.peak_suction_at`), returning the analysis too.  The two give the same
+    figures (tests/test_certified.py).  ``samples`` circle samples, ``proxies`` from
+    :data:`PROXIES` (``stratford`` needs ``reynolds``), ``proxy_end`` where they stop,
+    ``stations`` (M,) chord stations of exact thickness, ``floor`` the local-thickness floor t₀
+    in chords (0: none).
+    """
+    if route not in ROUTES:
+        raise ValueError(f"route must be one of {', '.join(ROUTES)}, not {route!r}")
+    cls = np.atleast_1d(np.asarray(cls, dtype=float))
+    xs = np.asarray(stations, dtype=float).reshape(-1)
+    if route == "compiled":
+        want = sum(bit for name, bit in PROXY_BITS if name in proxies)
+        status, fig, peaks, st = _compiled.search_batch(
+            np.ascontiguousarray(sections.coefficients), np.ascontiguousarray(sections.te_angle),
+            cls, int(samples), 1.0 - DEFAULT_CRITICAL_MARGIN, DEFAULT_SINGULAR_MARGIN,
+            float(proxy_end), xs, want, float(reynolds or 0.0), _compiled.PEAK_TOLERANCE,
+            bool(design_peak), float(floor))
+        return SearchFigures(Evaluation.from_figures(status, fig), peaks, st)
+    from dataclasses import replace
+
+    an = analyse(sections, cl=float(cls[0]), samples=samples, proxies=proxies,
+                 reynolds=reynolds, proxy_end=proxy_end, floor=floor)
+    ev = an.evaluation
+    status = ev.status.copy()
+    peak = -ev.cp_min
+    for cl in cls[1:]:
+        other, stc = an.peak_suction_at(float(cl))
+        status = np.where(status == Status.OK, stc, status).astype(np.int8)
+        peak = np.fmax(peak, other)
+    if xs.size:
+        with np.errstate(all="ignore"):
+            st = station_thickness(sections, an.frame, an.split, xs)
+    else:
+        st = np.zeros((len(sections), 0))
+    return SearchFigures(replace(ev, status=status), peak, st, an)
+
+
 def speed_at_stations(analysis: Analysis, x, surface: str = "upper") -> np.ndarray:
     """Speed ratio q = V/V∞ at chord stations ``x`` (M,) on one surface, shape (B, M).
 
@@ -380,12 +463,12 @@ def surface_distribution(analysis: Analysis, points: int = 201, spacing: str = "
     return zc, upper, q
 
 
-def surfaces_on_grid(analysis: Analysis, points: int):
+def surfaces_on_grid(analysis: Analysis, samples: int):
     """Both surfaces from the stagnation point (:class:`~foilmap.section.surfaces.Surface`),
-    with the exact surface speed on a circle grid of ``points`` samples: the input of the
+    with the exact surface speed on a circle grid of ``samples`` samples: the input of the
     boundary-layer screening and of the exported surface tables."""
     sec = analysis.sections
-    grid = CircleGrid.get(points, max(sec.n_coefficients, 1))
+    grid = CircleGrid.get(samples, max(sec.n_coefficients, 1))
     mv = map_on_grid(sec, grid)
     q = surface_speed(analysis.flow, mv, grid)
     return surfaces_from_stagnation(analysis.flow, mv, grid, analysis.frame, q)

@@ -221,7 +221,7 @@ def _mapped_contour(coefficients: np.ndarray, te_angle: float, points: int = 400
     from foilmap.section.geometry import coordinates
 
     sec = SectionSet(coefficients[None, :], [te_angle])
-    an = analyse(sec, alpha=0.0, points=max(512, 2 * len(coefficients) + 64), proxies=(),
+    an = analyse(sec, alpha=0.0, samples=max(512, 2 * len(coefficients) + 64), proxies=(),
                  singular_margin=1e-4, critical_margin=0.0)
     zc = coordinates(sec, an.frame, an.split, points, "map")[0]
     ref = 0j

@@ -29,7 +29,7 @@ __all__ = [
     "zero_lift_angle",
     "surface_speed",
     "speed_log_derivative",
-    "peak_suction",
+    "peak_speed",
     "certified_peak",
     "moment_quarter_chord",
 ]
@@ -121,34 +121,42 @@ def surface_speed(flow: FlowState, mv: MapValues, grid: CircleGrid) -> np.ndarra
     return speed_on_circle(flow, grid.phi, mv.dz)
 
 
-def speed_log_derivative(phi: np.ndarray, alpha_c: np.ndarray, q2: np.ndarray) -> np.ndarray:
-    """d ln q / dφ on the circle, from the analytic map derivatives.
+def speed_log_derivative(phi: np.ndarray, alpha_c: np.ndarray, q2: np.ndarray,
+                         grid: CircleGrid | None = None) -> np.ndarray:
+    """d ln q / dφ on the circle, from the analytic map derivatives (ζ z''/z' = ``q2``).
 
-    d ln|w|/dφ = cos(φ − α')/(sin(φ − α') + sin α') and d ln|z'|/dφ = −Im(ζ z''/z').
+    d ln|w|/dφ = cos(φ − α')/(sin(φ − α') + sin α') and d ln|z'|/dφ = −Im(ζ z''/z').  With
+    ``grid`` (whose angles ``phi`` are) the same by angle addition on the grid's own cos φ and
+    sin φ, with no trigonometric function of φ.  The one place the formula is written on the
+    numpy side (the compiled one: ``foilmap.section._kmap._dlnq``).
     """
     with np.errstate(all="ignore"):
+        if grid is not None:
+            ca, sa = np.cos(alpha_c), np.sin(alpha_c)
+            return ((grid.cos * ca + grid.sin * sa) / (grid.sin * ca - grid.cos * sa + sa)
+                    + np.imag(q2))
         return np.cos(phi - alpha_c) / (np.sin(phi - alpha_c) + np.sin(alpha_c)) + np.imag(q2)
 
 
-def peak_suction(sections: SectionSet, flow: FlowState, points: int = 256
-                 ) -> tuple[np.ndarray, np.ndarray]:
-    """Largest surface speed on the whole contour, certified between samples.
+def peak_speed(sections: SectionSet, flow: FlowState, samples: int = 256
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """Largest surface speed q_max on the whole contour, certified between samples.
 
     Every sampled local maximum is refined to round-off, and every arc of the circle is shown
     by rigorous bounds of the map to hold no speed above the reported one by more than
-    :data:`~foilmap.section._compiled.PEAK_TOLERANCE` (relative); ``points`` only sets where the search
+    :data:`~foilmap.section._compiled.PEAK_TOLERANCE` (relative); ``samples`` only sets where the search
     starts (docs/method.md, "What is exact between samples").
 
     Returns ``(q_max, phi_peak)``, shapes (B,); the peak suction is −Cp_min = q_max² − 1.
     NaN where the flow angle is not finite.
     """
-    q, phi, _ = certified_peak(sections, flow, points)
+    q, phi, _ = certified_peak(sections, flow, samples)
     return q, phi
 
 
-def certified_peak(sections: SectionSet, flow: FlowState, points: int = 256
+def certified_peak(sections: SectionSet, flow: FlowState, samples: int = 256
                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """:func:`peak_suction` with its certificate: ``(q_max, phi_peak, certified)``.
+    """:func:`peak_speed` with its certificate: ``(q_max, phi_peak, certified)``.
 
     ``certified`` is False where the branch and bound ran out of budget or stack before it
     showed every arc below the reported speed: there the value is only the largest speed found
@@ -157,7 +165,7 @@ def certified_peak(sections: SectionSet, flow: FlowState, points: int = 256
     """
     alpha_c = np.asarray(flow.alpha_circle, dtype=float)
     q, phi, cert = _compiled.peak_batch(np.ascontiguousarray(sections.coefficients),
-                                        sections.te_angle, alpha_c, int(points),
+                                        sections.te_angle, alpha_c, int(samples),
                                         _compiled.PEAK_TOLERANCE)
     return q, phi, cert | ~np.isfinite(alpha_c)
 

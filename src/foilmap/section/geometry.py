@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from foilmap.section._kconst import FLOOR_NOSE, FLOOR_STATIONS, FLOOR_TAPER, THICKNESS_STATIONS
 from foilmap.section._numerics import interp_rows, refine_extremum
 from foilmap.section.conformal import CircleGrid, MapValues, SectionSet, map_at, map_on_grid
 
@@ -26,6 +27,7 @@ __all__ = [
     "Geometry",
     "section_geometry",
     "thickness_at",
+    "station_thickness",
     "coordinates",
 ]
 
@@ -86,10 +88,10 @@ def _le_radius(sections: SectionSet, frame: ChordFrame) -> np.ndarray:
         return np.abs(m.dz[:, 0]) / np.real(1.0 + m.q2[:, 0]) / frame.chord
 
 
-def leading_edge_radius(sections: SectionSet, points: int = 256) -> np.ndarray:
+def leading_edge_radius(sections: SectionSet, samples: int = 256) -> np.ndarray:
     """Exact leading-edge radius of valid sections, in chords, (B,) (what
     :func:`section_geometry` reports, without the rest)."""
-    grid = CircleGrid.get(points, sections.n_coefficients)
+    grid = CircleGrid.get(samples, sections.n_coefficients)
     return _le_radius(sections, chord_frame(sections, map_on_grid(sections, grid), grid))
 
 
@@ -247,7 +249,7 @@ def section_geometry(
     grid: CircleGrid,
     frame: ChordFrame,
     split: SurfaceSplit,
-    stations: int = 65,
+    stations: int = THICKNESS_STATIONS,
     zc: np.ndarray | None = None,
 ) -> Geometry:
     """Thickness, camber, leading-edge radius and area of each section.
@@ -334,32 +336,39 @@ def coordinates(
     return out, phi
 
 
+def station_thickness(sections: SectionSet, frame: ChordFrame, split: SurfaceSplit,
+                      x: np.ndarray, iterations: int = 4) -> np.ndarray:
+    """Exact local thickness y_u − y_l at chord stations ``x`` (M,), shape (B, M): both
+    surfaces' exact contour points there (:func:`exact_points_at_x`)."""
+    x = np.asarray(x, dtype=float)
+    zu = exact_points_at_x(sections, frame, split, -x, iterations=iterations)
+    zl = exact_points_at_x(sections, frame, split, x, iterations=iterations)
+    return zu.imag - zl.imag
+
+
 def thickness_floor(x: np.ndarray, t0: float) -> np.ndarray:
     """The local-thickness floor at chord stations ``x``: t₀ min(1, x/0.05, ((1 − x)/0.2)²)
-    (the compiled kernel's :func:`~foilmap.section._compiled.floor_at`, whose constants it
+    (the compiled kernel's :func:`~foilmap.section._kfloor.floor_at`, whose constants it
     reads)."""
-    from foilmap.section import _compiled as C
-
     x = np.asarray(x, dtype=float)
-    w = (1.0 - x) / (1.0 - C.FLOOR_TAPER)
-    return t0 * np.minimum(np.minimum(1.0, x / C.FLOOR_NOSE), w * w)
+    w = (1.0 - x) / (1.0 - FLOOR_TAPER)
+    return t0 * np.minimum(np.minimum(1.0, x / FLOOR_NOSE), w * w)
 
 
-def floor_clearance(sections: SectionSet, t0: float, points: int = 256
+def floor_clearance(sections: SectionSet, t0: float, samples: int = 256
                     ) -> tuple[np.ndarray, np.ndarray]:
     """How far each valid section's local thickness stays above the floor t₀ at the floor's
     exact stations: ``(least thickness − floor, its station x/c)``, shapes (B,), NaN where the
     section is invalid (exact contour points; the search's ``floor_margin`` figure)."""
     from foilmap.section import _compiled as C
 
-    grid = CircleGrid.get(points, max(sections.n_coefficients, 1))
+    grid = CircleGrid.get(samples, max(sections.n_coefficients, 1))
     mv = map_on_grid(sections, grid)
     frame = chord_frame(sections, mv, grid)
     split = split_surfaces(frame.to_chord(mv.z), grid.phi, frame.phi_le)
-    xs = C.floor_stations()[: C.FLOOR_STATIONS]  # the design stations (without the tail)
+    xs = C.floor_stations()[:FLOOR_STATIONS]  # the design stations (without the tail)
     with np.errstate(all="ignore"):
-        t = (exact_points_at_x(sections, frame, split, -xs, iterations=8).imag
-             - exact_points_at_x(sections, frame, split, xs, iterations=8).imag)
+        t = station_thickness(sections, frame, split, xs, iterations=8)
     m = t - thickness_floor(xs, t0)[None, :]
     j = np.nanargmin(np.where(np.isfinite(m), m, np.inf), axis=1)
     rows = np.arange(len(sections))

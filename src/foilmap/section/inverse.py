@@ -42,7 +42,8 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["Target", "InverseResult", "InverseSection", "inverse_design", "inverse_section",
-           "lighthill_contour", "lighthill_speed", "section_coefficients"]
+           "lighthill_contour", "lighthill_speed", "section_coefficients", "read_order",
+           "achieved_cp", "cp_rms", "target_cp_rms"]
 
 #: Gauss–Legendre nodes per grid interval of the contour integration
 _GAUSS = np.polynomial.legendre.leggauss(6)
@@ -521,8 +522,9 @@ class InverseSection:
 
     @property
     def rms_deviation(self) -> float:
-        d = self.deviation[self.read]
-        return float(np.sqrt(np.mean(d * d)))
+        """RMS of :attr:`deviation` over the stations read (:func:`cp_rms`)."""
+        t = self.design.target
+        return float(cp_rms(self.deviation[None, :], t.x, t.upper)[0])
 
     @property
     def worst(self) -> tuple[float, float, bool]:
@@ -533,13 +535,56 @@ class InverseSection:
         return float(d[j]), float(t.x[j]), bool(t.upper[j])
 
 
+def read_order(x, upper) -> np.ndarray:
+    """Indices of the target stations that are read (x ≤ ``TE_ZONE``): the upper surface's
+    first, then the lower's, each in the target's order."""
+    x, upper = np.asarray(x, dtype=float), np.asarray(upper, dtype=bool)
+    read = x <= TE_ZONE
+    return np.concatenate([np.flatnonzero(read & (upper == side)) for side in (True, False)])
+
+
+def cp_rms(deviation, x, upper) -> np.ndarray:
+    """RMS over the read stations (:func:`read_order`) of a Cp deviation (B, M) given at every
+    target station, shape (B,)."""
+    return _rms(np.asarray(deviation)[:, read_order(x, upper)])
+
+
+def _rms(d: np.ndarray) -> np.ndarray:
+    return np.sqrt(np.mean(d * d, axis=1))
+
+
+def achieved_cp(analysis, x, upper) -> np.ndarray:
+    """The exact Cp of analysed sections at chord stations ``x`` (M,) on the surfaces ``upper``
+    (M,) says, shape (B, M) (exact contour points: :func:`~foilmap.section.evaluation.\
+speed_at_stations`)."""
+    from foilmap.section.evaluation import speed_at_stations
+
+    x, upper = np.asarray(x, dtype=float), np.asarray(upper, dtype=bool)
+    q = np.empty((len(analysis.sections), x.size))
+    for side in (True, False):
+        m = upper == side
+        if m.any():
+            with np.errstate(all="ignore"):
+                q[:, m] = speed_at_stations(analysis, x[m], "upper" if side else "lower")
+    return 1.0 - q * q
+
+
+def target_cp_rms(analysis, x, upper, cp) -> np.ndarray:
+    """RMS of the exact Cp of analysed sections minus a target ``cp`` at its stations ``x`` on
+    the surfaces ``upper``, over the stations read (outside the trailing-edge zone), shape
+    (B,): the objective ``target_cp_rms`` and :attr:`InverseSection.rms_deviation`."""
+    x, upper = np.asarray(x, dtype=float), np.asarray(upper, dtype=bool)
+    j = read_order(x, upper)
+    return _rms(achieved_cp(analysis, x[j], upper[j]) - np.asarray(cp, dtype=float)[j][None, :])
+
+
 def inverse_section(target: Target, *, cl: float | None = None, alpha: float | None = None,
                     te_angle: float = np.radians(10.0), coefficients: int = 24,
                     **kwargs) -> InverseSection:
     """:func:`inverse_design`, then the fit of its contour with ``coefficients`` shape-series
     terms, and the fitted section's exact Cp at the target's stations."""
     from foilmap.section.conformal import SectionSet
-    from foilmap.section.evaluation import analyse, speed_at_stations
+    from foilmap.section.evaluation import analyse
     from foilmap.section.fitting import fit_section
 
     design = inverse_design(target, cl=cl, alpha=alpha, te_angle=te_angle, **kwargs)
@@ -547,10 +592,5 @@ def inverse_section(target: Target, *, cl: float | None = None, alpha: float | N
     sec = SectionSet(fit.coefficients[None, :], [fit.te_angle])
     kw = {"cl": cl} if cl is not None else {"alpha": alpha}
     an = analyse(sec, proxies=(), **kw)
-    q = np.empty(target.x.size)
-    for side in (True, False):
-        m = target.upper == side
-        if m.any():
-            q[m] = speed_at_stations(an, target.x[m], "upper" if side else "lower")[0]
-    return InverseSection(design, fit, 1.0 - q * q, float(an.evaluation.cl[0]),
-                          float(an.evaluation.alpha[0]))
+    return InverseSection(design, fit, achieved_cp(an, target.x, target.upper)[0],
+                          float(an.evaluation.cl[0]), float(an.evaluation.alpha[0]))

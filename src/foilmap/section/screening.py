@@ -221,15 +221,15 @@ def _x_of(surface, s_query):
 
 
 def screen_analysis(analysis, reynolds: float, drag_station: float = DRAG_STATION,
-                    points: int = 1024) -> ScreenResult:
+                    samples: int = 1024) -> ScreenResult:
     """Screen the sections of an :class:`~foilmap.section.evaluation.Analysis` at its operating point.
 
-    The surface speeds are the exact ones on a fine circle grid (``points``).
+    The surface speeds are the exact ones on a fine circle grid (``samples``).
     """
     from foilmap.section.evaluation import surfaces_on_grid
 
     sec = analysis.sections
-    upper, lower = surfaces_on_grid(analysis, points)
+    upper, lower = surfaces_on_grid(analysis, samples)
     out = {k: {} for k in ("xt", "bysep", "xls", "xts", "th", "h")}
     cd = np.zeros(len(sec))
     for name, sf in (("upper", upper), ("lower", lower)):

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from foilmap.section.conformal import CircleGrid, MapValues
-from foilmap.section.flow import FlowState
+from foilmap.section.flow import FlowState, speed_log_derivative
 from foilmap.section.geometry import ChordFrame
 
 __all__ = ["Surface", "surfaces_from_stagnation"]
@@ -85,13 +85,7 @@ def surfaces_from_stagnation(
     lower_mask = grid.phi[None, :] > phi_s[:, None]
     s_signed = arc - arc_s[:, None]
     arc_total = arc[:, -1] + 0.5 * h * ds_dphi[:, -1]  # to φ = 2π
-    # d ln q/dφ = cos(φ − α')/(sin(φ − α') + sin α') + Im(ζz''/z'), by angle addition on the
-    # grid's own cos φ and sin φ
-    ca = np.cos(flow.alpha_circle)[:, None]
-    sa = np.sin(flow.alpha_circle)[:, None]
-    with np.errstate(all="ignore"):
-        dlnq = (grid.cos * ca + grid.sin * sa) / (grid.sin * ca - grid.cos * sa + sa)
-    dlnq += mv.q2.imag
+    dlnq = speed_log_derivative(grid.phi, flow.alpha_circle[:, None], mv.q2, grid)
     grad = q * dlnq / ds_dphi  # dq/ds along increasing φ
     zc = frame.to_chord(mv.z)
     x, y = zc.real, zc.imag
