@@ -341,3 +341,13 @@ def test_a_front_study_points_best_to_pick_and_plots_its_hypervolume(tmp_path):
     r = cli("plot-run", a, "-o", tmp_path / "hv.png")
     assert r.returncode == 0, r.stderr
     assert (tmp_path / "hv.png").stat().st_size > 20_000
+
+
+def test_a_study_is_multi_objective_by_its_search_method():
+    from foilmap.design.fronts import is_multi_objective
+    from foilmap.store import folder
+    from foilmap.store.studyfile import parse_study
+
+    assert folder.is_multi_objective is is_multi_objective  # the store re-exports it
+    assert is_multi_objective(parse_study(MO_STUDY))
+    assert not is_multi_objective(parse_study(small_study("single", [1], 100)))

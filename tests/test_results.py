@@ -22,6 +22,18 @@ def test_log_codes_round_trip_and_unknown_codes_are_unreadable():
     assert RunState("interrupted") is RunState.INTERRUPTED and RunState.COMPLETE == "complete"
 
 
+def test_a_state_is_parsed_with_a_default_for_names_it_does_not_know():
+    assert RunState.parse("interrupted", RunState.PENDING) is RunState.INTERRUPTED
+    for odd in ("paused", None, 3):  # an index written by another version
+        assert RunState.parse(odd, RunState.UNFINISHED) is RunState.UNFINISHED
+    # the merge of an index entry and a log goes through it
+    from foilmap.store.folder import StudyFolder
+
+    assert StudyFolder.merged_state("paused", "running") is RunState.UNFINISHED
+    assert StudyFolder.merged_state("failed", "running") is RunState.FAILED
+    assert StudyFolder.merged_state("running", "complete") is RunState.COMPLETE
+
+
 def test_history_columns():
     h = History({"generation": np.arange(3), "best_f": np.array([3.0, 2.0, 1.5])})
     assert h.names == ["generation", "best_f"] and len(h) == 3

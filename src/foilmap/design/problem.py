@@ -15,7 +15,7 @@ import numpy as np
 
 from foilmap.design.study import Parametrisation, Point, RunSpec, Study
 from foilmap.section.evaluation import PROXIES, Evaluation, search_figures
-from foilmap.section.operating import compressible_cp, critical_mach
+from foilmap.section.operating import cavitation_margin, compressible_cp, critical_mach
 from foilmap.section.status import Status
 
 __all__ = ["Problem", "Outcome", "INVALID_CONSTRAINT", "front_vectors"]
@@ -113,7 +113,8 @@ class Problem:
         if "cavitation_margin" in c:
             sigma = self.point.sigma
             specs.append(("cavitation_margin", 0.05,
-                          lambda ev, st, pk: c["cavitation_margin"] - (sigma - pk)))
+                          lambda ev, st, pk: c["cavitation_margin"]
+                          - cavitation_margin(sigma, pk)))
         if "min_critical_mach" in c:
             specs.append(("min_critical_mach", 0.01,
                           lambda ev, st, pk: c["min_critical_mach"] - self.critical_mach(pk)))
