@@ -24,6 +24,23 @@ cl = 0.5
 peak_suction = 1.0
 """
 
+#: a family study: two span stations (the schema tests set the first station's keys)
+FAMILY_BASE = """
+[study]
+name = "t"
+seeds = [1, 2]
+[[station]]
+name = "root"
+position = 0.0
+cl = 0.5
+[[station]]
+name = "tip"
+position = 1.0
+cl = 0.4
+[objectives]
+peak_suction = 1.0
+"""
+
 
 def test_defaults_and_expansion():
     text = BASE + """
@@ -203,16 +220,18 @@ def _study_with(table: str, key: str, value) -> str:
     """BASE's study with one key set (replaced where BASE has it; its table added when BASE
     has none)."""
     line = f"{key} = {_toml(value)}"
-    header = {"study": "[study]", "point": "[[point]]", "objectives": "[objectives]"}.get(table)
+    base = FAMILY_BASE if table in ("station", "family") else BASE
+    header = {"study": "[study]", "point": "[[point]]", "station": "[[station]]",
+              "objectives": "[objectives]"}.get(table)
     if header is None:
-        return BASE + f"[{table}]\n{line}\n"
+        return base + f"[{table}]\n{line}\n"
     out, inside, done = [], False, False
-    for ln in BASE.splitlines():
+    for ln in base.splitlines():
         if ln.startswith("["):
             if inside and not done:
                 out.append(line)
                 done = True
-            inside = ln == header
+            inside = ln == header and not done
         elif inside and ln.split(" = ")[0] == key:
             ln, done = line, True
         out.append(ln)
@@ -256,7 +275,7 @@ CASES = [(table, key, value) for table, keys in SCHEMA.items() for key, spec in 
 def test_every_key_refuses_what_it_does_not_allow(table, key, value):
     # the schema's own limits (design.study.SCHEMA): every check of every key is exercised, so
     # a check dropped from the validation lets a value through and fails here
-    path = "point[1]." + key if table == "point" else f"{table}.{key}"
+    path = f"{table}[1].{key}" if table in ("point", "station") else f"{table}.{key}"
     with pytest.raises(InputError) as err:
         parse_study(_study_with(table, key, value), "bad.toml")
     msg = str(err.value)
@@ -277,4 +296,4 @@ def test_every_key_accepts_its_limits():
                     parse_study(text, "ok.toml")
                 except InputError as exc:  # another key's rule (a cross-check) may object
                     assert f"{table}.{key} = " not in str(exc) and \
-                        f"point[1].{key} = " not in str(exc), str(exc)
+                        f"{table}[1].{key} = " not in str(exc), str(exc)

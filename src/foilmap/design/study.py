@@ -26,6 +26,9 @@ __all__ = [
     "Point",
     "RunSpec",
     "Parametrisation",
+    "Station",
+    "FAMILY_RUN",
+    "family_point",
     "parse_study",
 ]
 
@@ -168,9 +171,36 @@ SCHEMA["fronts"] = {
     "reference_point": Key("floats", None, "hypervolume reference point, one value per objective "
                            "in the order of [objectives]", -1e6, 1e6),
 }
+SCHEMA["station"] = {
+    "name": Key("name", None, "station name", required=True),
+    "position": Key("float", None, "span position, a fraction from 0 (root) to 1 (tip); "
+                    "positions increase from station to station", 0.0, 1.0, required=True),
+    **{k: v for k, v in SCHEMA["point"].items() if k != "name"},
+    "weight": Key("float", 1.0, "weight of the station's objective in the family's sum",
+                  0.0, 1e6),
+}
+SCHEMA["family"] = {
+    "rule": Key("choice", "pchip", "how coefficients and trailing-edge angle vary between "
+                "stations: pchip (monotone piecewise cubic, smooth through the stations) or "
+                "linear", choices=("pchip", "linear")),
+    "checks": Key("int", 8, "in-between positions checked in each interval (valid, within the "
+                  "interpolated constraints, fair)", 1, 64),
+    "fair_tolerance": Key("float", 1e-5, "chords a thickness or camber schedule may go against "
+                          "its interval's direction (round-off allowance of the fairness rule)",
+                          0.0, 0.01),
+    "start": Key("choice", "stations", "stations: independent runs at each station first, "
+                 "then the family faired jointly from their optima; shape: one joint search "
+                 "from shape.start", choices=("stations", "shape")),
+    "step": Key("float", 0.1, "the joint search's initial step, as a fraction of the station "
+                "runs' (start = stations only)", 1e-3, 1.0),
+    "evaluations": Key("int", 0, "evaluation budget of the joint search (0: "
+                       "search.max_evaluations)", 0, 10**8),
+}
 _VARIANT_TABLES = ("shape", "search")
-_TOP = ("study", "shape", "point", "objectives", "constraints", "search", "variant", "fronts",
-        "engine")
+_TOP = ("study", "shape", "point", "station", "family", "objectives", "constraints", "search",
+        "variant", "fronts", "engine")
+#: the run id stem of a family's joint search (station runs are named after their stations)
+FAMILY_RUN = "family"
 
 
 def _fail(where: str, msg: str):
@@ -295,6 +325,17 @@ class Point:
 
 
 @dataclass(frozen=True)
+class Station:
+    """One span station of a family: its operating point, weight and own constraints."""
+
+    name: str
+    position: float  # span fraction, 0 (root) to 1 (tip)
+    point: Point
+    weight: float
+    constraints: dict  # the study's [constraints] with the station's own over them
+
+
+@dataclass(frozen=True)
 class RunSpec:
     """One run of a study: one search with one seed at one point for one variant (and, in an
     ε-constraint sweep, one bound on the second objective)."""
@@ -307,6 +348,10 @@ class RunSpec:
     search: dict
     epsilon: float | None = None
     epsilon_index: int | None = None
+    #: a station run's constraints (the study's with the station's own); None: the study's
+    constraints: dict | None = None
+    #: True for a family's joint search (its point is a stand-in named ``family``)
+    family: bool = False
 
     @property
     def front_key(self) -> str:
@@ -334,23 +379,43 @@ class Study:
     reference_point: tuple[float, ...] | None = None  # [fronts] reference_point
     engine: dict = field(default_factory=lambda: {"kind": "local", "scheduler": "", "workers": 0})
     budget: int | None = None  # a budget set by with_budget (the text keeps the study's own)
+    #: a family study's span stations (then ``points`` are their points) and [family] table
+    stations: tuple[Station, ...] = ()
+    family: dict | None = None
+
+    @property
+    def is_family(self) -> bool:
+        return bool(self.stations)
 
     def runs(self) -> list[RunSpec]:
-        """Expand into runs: variants × points × seeds, in that order."""
+        """Expand into runs: variants × points × seeds, in that order.  A family study has a
+        run per station (when it starts from the stations) and then the joint search, per
+        variant and seed."""
         out = []
         for vname, over in self.variants:
             shape = {**self.shape, **over.get("shape", {})}
             search = {**self.search, **over.get("search", {})}
             levels = search.get("epsilon_levels") if search["method"] == "epsilon" else None
-            for p in self.points:
+            if self.is_family:
+                cases = [(st.point, st.constraints, False) for st in self.stations
+                         if self.family["start"] == "stations"]
+                joint = {**search}
+                if self.family["evaluations"] and self.budget is None:
+                    joint["max_evaluations"] = self.family["evaluations"]
+                cases.append((family_point(self.stations), None, True))
+            else:
+                cases = [(p, None, False) for p in self.points]
+            for p, cons, fam in cases:
+                srch = joint if fam else search
                 for s in self.seeds:
                     base = f"{p.name}.{vname}" if vname else p.name
                     if levels:
                         for i, eps in enumerate(levels):
-                            out.append(RunSpec(f"{base}.e{i}.s{s}", s, p, vname, shape, search,
-                                               eps, i))
+                            out.append(RunSpec(f"{base}.e{i}.s{s}", s, p, vname, shape, srch,
+                                               eps, i, cons, fam))
                     else:
-                        out.append(RunSpec(f"{base}.s{s}", s, p, vname, shape, search))
+                        out.append(RunSpec(f"{base}.s{s}", s, p, vname, shape, srch,
+                                           constraints=cons, family=fam))
         return out
 
     def with_budget(self, evals: int) -> "Study":
@@ -361,7 +426,15 @@ class Study:
             for n, o in self.variants)
         return Study(self.name, self.description, self.seeds, self.shape, self.points,
                      self.objectives, self.constraints, search, variants, self.text, self.source,
-                     self.base_dir, self.reference_point, self.engine, int(evals))
+                     self.base_dir, self.reference_point, self.engine, int(evals),
+                     self.stations, self.family)
+
+
+def family_point(stations) -> Point:
+    """The stand-in point of a family's joint search: named ``family``, with the first
+    station's figures (each station keeps its own; see :mod:`foilmap.design.family`)."""
+    p = stations[0].point
+    return Point(FAMILY_RUN, p.cl, p.cl_range, p.reynolds, p.mach, p.compressibility, p.sigma)
 
 
 def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
@@ -385,29 +458,30 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
             _fail(where, f"unknown table or key {k!r} (allowed: {', '.join(_TOP)})")
     st = _table(where, "study", data.get("study"), SCHEMA["study"], required_table=True)
     shape = _table(where, "shape", data.get("shape"), SCHEMA["shape"])
-    raw_points = data.get("point")
-    if not isinstance(raw_points, list) or not raw_points:
-        _fail(where, "needs at least one [[point]] table (an operating point with name and cl)")
-    points = []
-    for i, rp in enumerate(raw_points, start=1):
-        p = _table(where, f"point[{i}]", rp, SCHEMA["point"])
-        if p["cl_range"] is not None and not p["cl_range"][0] <= p["cl"] <= p["cl_range"][1]:
-            _fail(where, f"point[{i}].cl = {p['cl']:g} is outside its cl_range "
-                         f"{p['cl_range']!r}")
-        target = None
-        if p["target_cp"] is not None:
-            if read_target is None:
-                _fail(where, f"point[{i}].target_cp = {p['target_cp']!r} names a file; load "
-                             "the study with foilmap.load_study(path), which reads it")
-            try:
-                target = read_target(p["target_cp"], base_dir)
-            except InputError as exc:
-                _fail(where, f"point[{i}].target_cp = {p['target_cp']!r}: {exc}")
-        points.append(Point(p["name"], p["cl"], None if p["cl_range"] is None
-                            else tuple(p["cl_range"]), p["reynolds"], p["mach"],
-                            p["compressibility"], _point_sigma(where, i, p), target))
+    raw_points, raw_stations = data.get("point"), data.get("station")
+    if raw_stations is not None and raw_points is not None:
+        _fail(where, "has both [[point]] and [[station]] tables: a study designs one section at "
+                     "its points, or a family at its stations, not both")
+    if data.get("family") is not None and raw_stations is None:
+        _fail(where, "a [family] table needs [[station]] tables (span stations with name, "
+                     "position and cl)")
+    stations: list[Station] = []
+    family = None
+    if raw_stations is not None:
+        stations = _parse_stations(where, raw_stations, data, base_dir, read_target)
+        points = [st.point for st in stations]
+        family = _table(where, "family", data.get("family"), SCHEMA["family"])
+    else:
+        if not isinstance(raw_points, list) or not raw_points:
+            _fail(where, "needs at least one [[point]] table (an operating point with name and "
+                         "cl), or [[station]] tables for a family")
+        points = [_parse_point(where, "point", i, rp, SCHEMA["point"], base_dir, read_target)[0]
+                  for i, rp in enumerate(raw_points, start=1)]
     if len({p.name for p in points}) != len(points):
-        _fail(where, "point names must be distinct")
+        _fail(where, f"{'station' if stations else 'point'} names must be distinct")
+    if stations and FAMILY_RUN in {p.name for p in points}:
+        _fail(where, f"station name {FAMILY_RUN!r} is kept for the family's joint search; "
+                     "choose another")
     obj = data.get("objectives")
     if not isinstance(obj, dict) or not obj:
         _fail(where, f"needs an [objectives] table naming at least one of: {', '.join(OBJECTIVES)}")
@@ -427,6 +501,10 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
     cons = _table(where, "constraints", data.get("constraints"), SCHEMA["constraints"])
     cons = {k: v for k, v in cons.items() if v is not None}
     _check_constraints(where, cons, shape, points)
+    for i, sta in enumerate(stations):
+        merged = {**cons, **sta.constraints}
+        _check_constraints(where, merged, shape, [sta.point])
+        stations[i] = Station(sta.name, sta.position, sta.point, sta.weight, merged)
     search = _table(where, "search", data.get("search"), SCHEMA["search"])
     variants: list[tuple[str, dict]] = []
     raw_var = data.get("variant", [])
@@ -482,29 +560,76 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None,
     eng = _table(where, "engine", data.get("engine"), SCHEMA["engine"])
     study = Study(st["name"], st["description"], tuple(st["seeds"]), shape, tuple(points),
                   objectives, cons, search, tuple(variants), text, source, base_dir,
-                  None if ref is None else tuple(ref), eng)
+                  None if ref is None else tuple(ref), eng, None, tuple(stations), family)
     for run in study.runs():
         _check_shape(where, run)
     return study
 
 
-def _point_sigma(where: str, i: int, p: dict) -> float | None:
+def _parse_point(where: str, label: str, i: int, rp, schema: dict, base_dir, read_target):
+    """One [[point]] or [[station]] table: its Point and the validated table."""
+    p = _table(where, f"{label}[{i}]", rp, schema)
+    if p["cl_range"] is not None and not p["cl_range"][0] <= p["cl"] <= p["cl_range"][1]:
+        _fail(where, f"{label}[{i}].cl = {p['cl']:g} is outside its cl_range "
+                     f"{p['cl_range']!r}")
+    target = None
+    if p["target_cp"] is not None:
+        if read_target is None:
+            _fail(where, f"{label}[{i}].target_cp = {p['target_cp']!r} names a file; load "
+                         "the study with foilmap.load_study(path), which reads it")
+        try:
+            target = read_target(p["target_cp"], base_dir)
+        except InputError as exc:
+            _fail(where, f"{label}[{i}].target_cp = {p['target_cp']!r}: {exc}")
+    point = Point(p["name"], p["cl"], None if p["cl_range"] is None else tuple(p["cl_range"]),
+                  p["reynolds"], p["mach"], p["compressibility"],
+                  _point_sigma(where, i, p, label), target)
+    return point, p
+
+
+def _parse_stations(where: str, raw, data: dict, base_dir, read_target) -> list[Station]:
+    """The [[station]] tables of a family: at least two, positions increasing."""
+    if not isinstance(raw, list) or len(raw) < 2:
+        _fail(where, "a family needs at least two [[station]] tables")
+    out = []
+    for i, rs in enumerate(raw, start=1):
+        if not isinstance(rs, dict):
+            _fail(where, f"station[{i}] must be a table")
+        rs = dict(rs)
+        own = rs.pop("constraints", {})
+        point, st = _parse_point(where, "station", i, rs, SCHEMA["station"], base_dir,
+                                 read_target)
+        if not isinstance(own, dict):
+            _fail(where, f"station[{i}].constraints must be a table")
+        table = _table(where, f"station[{i}].constraints", own, SCHEMA["constraints"])
+        own = {k: table[k] for k in own}
+        if out and not st["position"] > out[-1].position:
+            _fail(where, f"station[{i}].position = {st['position']:g} does not increase (the "
+                         f"station before it, {out[-1].name!r}, is at {out[-1].position:g}); "
+                         "positions run from root to tip")
+        out.append(Station(point.name, st["position"], point, st["weight"], own))
+    if not any(s.weight > 0 for s in out):
+        _fail(where, "at least one station weight must be positive")
+    return out
+
+
+def _point_sigma(where: str, i: int, p: dict, label: str = "point") -> float | None:
     """A point's cavitation number: given, or from its speed, depth and water temperature."""
     parts = ("speed", "depth", "water_temperature")
     given = [k for k in parts if p[k] is not None]
     if p["sigma"] is not None:
         if given:
-            _fail(where, f"point[{i}]: give sigma or {', '.join(parts)}, not both (point[{i}]."
+            _fail(where, f"{label}[{i}]: give sigma or {', '.join(parts)}, not both ({label}[{i}]."
                          f"{given[0]} was also given)")
         return p["sigma"]
     if not given:
         return None
     missing = [k for k in parts if p[k] is None]
     if missing:
-        _fail(where, f"point[{i}]: the cavitation number from speed needs {', '.join(parts)}; "
-                     f"missing point[{i}].{missing[0]}")
+        _fail(where, f"{label}[{i}]: the cavitation number from speed needs {', '.join(parts)}; "
+                     f"missing {label}[{i}].{missing[0]}")
     if p["speed"] <= 0:
-        _fail(where, f"point[{i}].speed = {p['speed']!r} is not allowed (a speed above 0)")
+        _fail(where, f"{label}[{i}].speed = {p['speed']!r} is not allowed (a speed above 0)")
     from foilmap.section.operating import cavitation_number
 
     return float(cavitation_number(p["speed"], p["depth"], p["water_temperature"], p["water"]))

@@ -17,11 +17,14 @@ import threading
 import time
 from pathlib import Path
 
+import numpy as np
+
 from foilmap._version import __version__
 from foilmap.caution import CAUTION
+from foilmap.design.family import FamilyProblem, build_problem
 from foilmap.design.problem import Problem
 from foilmap.design.results import RunState
-from foilmap.design.study import RunSpec, Study
+from foilmap.design.study import Parametrisation, RunSpec, Study
 from foilmap.store.folder import StudyFolder
 from foilmap.store.lock import Busy, Lock
 from foilmap.store.runlog import (
@@ -50,6 +53,11 @@ RUN_LOCK_WAIT = 30.0
 _NO_SEED_FROM_LOG = ("the log keeps CMA-ES's mean and step size, not its covariance, evolution "
                      "paths and random state, so its figures could not continue it "
                      "bit-identically")
+
+
+def station_run_id(run: RunSpec, station: str) -> str:
+    """The id of the station run that a family run starts from (same variant, level, seed)."""
+    return station + run.run_id[len(run.point.name):]
 
 
 def _seed_note(run_id: str, why: str, log: RunLog | None) -> str:
@@ -122,7 +130,8 @@ def recover(log_path: Path, ckpt_path: Path, run_id: str):
     return state, g, log, note
 
 
-def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=None) -> dict:
+def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=None,
+                lock_wait: float | None = RUN_LOCK_WAIT) -> dict:
     """Run (or resume, or skip if complete) one run of a study; returns a summary.
 
     ``report``, if given, is called with a progress dict after every commit, and with
@@ -137,7 +146,7 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
     log_path = folder.log_path(run.run_id)
     log_path.parent.mkdir(parents=True, exist_ok=True)
     lock = Lock(log_path.with_suffix(".lock"), f"run {run.run_id}", label=f"run {run.run_id}")
-    lock.acquire(wait=RUN_LOCK_WAIT)
+    lock.acquire(wait=lock_wait)
     try:
         return _execute(study, run, folder, report, should_stop)
     finally:
@@ -148,10 +157,11 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
     from foilmap.design.search import is_finished, new_search, step
 
     log_path, ckpt_path = folder.log_path(run.run_id), folder.checkpoint_path(run.run_id)
-    problem = Problem.from_run(study, run)
     if folder.is_complete(run.run_id):  # (an unreadable log, killed before its first flush,
         ckpt_path.unlink(missing_ok=True)  # starts again)
         return folder.summary(run.run_id)
+    start = _station_starts(study, run, folder, report, should_stop) if run.family else None
+    problem = build_problem(study, run, start)
     state, kept, old, note = recover(log_path, ckpt_path, run.run_id)
     notes = [note] if note else []
     if note and report is not None:
@@ -177,7 +187,7 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
             "shape": run.shape,
             "search": run.search,
             "objectives": dict(study.objectives),
-            "constraints": study.constraints,
+            "constraints": study.constraints if run.constraints is None else run.constraints,
             "variable_names": _variable_names(problem),
             "caution": CAUTION,
         }
@@ -227,7 +237,35 @@ def _variable_names(problem: Problem) -> list[str]:
         names += [f"re_A{n}"] if problem.param.symmetric else [f"re_A{n}", f"im_A{n}"]
     if problem.param.tau_free:
         names.append("te_angle_unit")
+    if isinstance(problem, FamilyProblem):  # a family: each station's block in turn
+        return [f"{st.name}:{n}" for st in problem.stations for n in names]
     return names
+
+
+def _station_starts(study: Study, run: RunSpec, folder: StudyFolder, report,
+                    should_stop) -> np.ndarray | None:
+    """A family's joint search starts from its station runs' best designs: the station runs
+    not complete yet are run here first (one another worker is running is waited for, as its
+    lock is).  None when the family starts from the shape.  A station run with no feasible
+    design yet gives its best valid one; with none, the shape's start."""
+    if study.family["start"] != "stations":
+        return None
+    base = Parametrisation.from_shape(run.shape)
+    start = np.tile(base.x0(), (len(study.stations), 1))
+    for i, st in enumerate(study.stations):
+        sid = station_run_id(run, st.name)
+        srun = folder.run_spec(sid)
+        if not folder.is_complete(sid):
+            execute_run(study, srun, folder.path, report, should_stop, lock_wait=None)
+        log = folder.log(sid)
+        best = log.best() if log is not None else None
+        if best is not None:
+            start[i] = np.asarray(best["x"], dtype=float)
+        elif log is not None and log.evaluations:
+            ok = np.flatnonzero(log.evals["status"] == 0)
+            if ok.size:
+                start[i] = log.evals["x"][ok[np.argmin(log.evals["f"][ok])]]
+    return start
 
 
 #: set by SIGTERM in a worker process while it runs a run: the run stops at the end of its

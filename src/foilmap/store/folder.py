@@ -270,7 +270,9 @@ class StudyFolder:
             raise InputError(f"run {run_id!r} has no evaluation {evaluation} (it has "
                              f"{log.evaluations})")
         x = np.asarray(log.evals["x"][evaluation], dtype=float)
-        sec = Parametrisation.from_shape(spec.shape).sections(x[None, :])
+        param = Parametrisation.from_shape(spec.shape)
+        # a family run's vector holds each station's in turn: its design is their sections
+        sec = param.sections(x.reshape(-1, param.dimension) if spec.family else x[None, :])
         return FolderDesign(
             id=f"{run_id}#{evaluation}", run=spec, study_name=self.study.name,
             evaluation=int(evaluation), generation=int(log.evals["generation"][evaluation]),
@@ -296,6 +298,8 @@ class StudyFolder:
                              f"best design: choose one with foilmap pick {self.path} --knee (or "
                              "--nearest, --index)")
         runs = [self.run_spec(run_id)] if run_id is not None else study.runs()
+        if run_id is None and study.is_family:  # the family's best, not a station run's
+            runs = [r for r in runs if r.family]
         best = None
         for r in runs:
             log = self.log(r.run_id)
