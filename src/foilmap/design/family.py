@@ -82,7 +82,7 @@ def _pchip_slopes(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return m
 
 
-def interpolate(positions, values, at, rule: str = "pchip") -> np.ndarray:
+def interpolate(positions, values, at, rule: str = "linear") -> np.ndarray:
     """Values of the rule at span positions ``at`` (M,): ``values`` has the stations along
     axis 0 (S, ...), real or complex; returns (M, ...).  Exact at the stations (bit for bit)."""
     x = np.asarray(positions, dtype=float)
@@ -176,7 +176,7 @@ class Family:
     positions: np.ndarray
     coefficients: np.ndarray
     te_angle_deg: np.ndarray
-    rule: str = "pchip"
+    rule: str = "linear"
     figures: tuple = ()  # per station: dict of its figures (cl, …) as designed, for files
     provenance: dict | None = None
 
@@ -202,19 +202,25 @@ class Family:
         return p
 
     def coefficients_at(self, pos) -> tuple[np.ndarray, np.ndarray]:
-        """Coefficients (M, N) and trailing-edge angles in radians (M,) at span positions."""
+        """Coefficients (M, N) and trailing-edge angles in degrees (M,) at span positions."""
         p = self.check_position(pos)
         a = interpolate(self.positions, self.coefficients, p, self.rule)
-        tau = interpolate(self.positions, np.radians(np.asarray(self.te_angle_deg, float)), p,
-                          self.rule)
+        tau = interpolate(self.positions, np.asarray(self.te_angle_deg, float), p, self.rule)
         return a, tau
 
     def section_at(self, pos):
-        """The exact section(s) at span position(s) ``pos``: a ``SectionSet``."""
+        """The exact section(s) at span position(s) ``pos``: a ``SectionSet`` (at a station's
+        position, that station's section bit for bit)."""
         from foilmap.section.conformal import SectionSet
 
         a, tau = self.coefficients_at(pos)
-        return SectionSet(a, tau)
+        return SectionSet(a, np.radians(tau))
+
+    def loft_positions(self, n: int) -> np.ndarray:
+        """``n`` ≥ 2 span positions evenly from the first station to the last (the stations'
+        own positions are not added)."""
+        lo, hi = self.span
+        return np.linspace(lo, hi, int(n))
 
 
 # --- the search over a family -------------------------------------------------------------

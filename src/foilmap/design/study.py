@@ -180,9 +180,9 @@ SCHEMA["station"] = {
                   0.0, 1e6),
 }
 SCHEMA["family"] = {
-    "rule": Key("choice", "pchip", "how coefficients and trailing-edge angle vary between "
-                "stations: pchip (monotone piecewise cubic, smooth through the stations) or "
-                "linear", choices=("pchip", "linear")),
+    "rule": Key("choice", "linear", "how coefficients and trailing-edge angle vary between "
+                "stations: linear, or pchip (monotone piecewise cubic, C1 through the "
+                "stations)", choices=("linear", "pchip")),
     "checks": Key("int", 8, "in-between positions checked in each interval (valid, within the "
                   "interpolated constraints, fair)", 1, 64),
     "fair_tolerance": Key("float", 1e-5, "chords a thickness or camber schedule may go against "

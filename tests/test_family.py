@@ -1,0 +1,322 @@
+"""Section families: the rule between stations, fairness, the family search, family files."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.interpolate import PchipInterpolator
+
+from foilmap.design.family import (
+    Family,
+    build_problem,
+    check_positions,
+    fairness,
+    interpolate,
+    interpolate_constraints,
+)
+from foilmap.design.study import parse_study
+from foilmap.errors import InputError
+from foilmap.section.conformal import SectionSet
+from foilmap.store.familyfile import format_family, load_section_at, parse_family
+
+FAMILY = """
+[study]
+name = "fam"
+seeds = [1]
+[shape]
+coefficients = 4
+[[station]]
+name = "root"
+position = 0.0
+cl = 0.7
+constraints = { thickness = [0.14, 0.3] }
+[[station]]
+name = "mid"
+position = 0.4
+cl = 0.6
+weight = 2.0
+[[station]]
+name = "tip"
+position = 1.0
+cl = 0.5
+[objectives]
+peak_suction = 1.0
+[constraints]
+thickness = [0.10, 0.3]
+[search]
+max_evaluations = 200
+"""
+
+
+# --- the rule between stations ------------------------------------------------------------------
+
+POS = np.array([0.0, 0.15, 0.55, 1.0])
+
+
+def test_pchip_matches_an_independent_implementation():
+    # scipy's PchipInterpolator (Fritsch-Carlson slopes, the same published rule) is written
+    # apart from ours: the two agree to round-off, real and complex, over many stations
+    rng = np.random.default_rng(3)
+    y = rng.normal(size=(4, 3, 5)) + 1j * rng.normal(size=(4, 3, 5))
+    at = np.linspace(0.0, 1.0, 201)
+    ours = interpolate(POS, y, at, "pchip")
+    ref = PchipInterpolator(POS, y.real, axis=0)(at) + 1j * PchipInterpolator(POS, y.imag,
+                                                                               axis=0)(at)
+    assert np.max(np.abs(ours - ref)) < 1e-13
+
+
+def test_linear_matches_numpy_interp():
+    rng = np.random.default_rng(4)
+    y = rng.normal(size=4)
+    at = np.linspace(0.0, 1.0, 97)
+    assert np.max(np.abs(interpolate(POS, y, at, "linear") - np.interp(at, POS, y))) < 1e-15
+
+
+@pytest.mark.parametrize("rule", ["linear", "pchip"])
+def test_stations_bit_for_bit_and_identical_stations_everywhere(rule):
+    rng = np.random.default_rng(5)
+    y = rng.normal(size=(4, 6)) * 0.05 + 1j * rng.normal(size=(4, 6)) * 0.05
+    assert np.array_equal(interpolate(POS, y, POS, rule), y)
+    same = np.repeat(y[:1], 4, axis=0)
+    at = np.linspace(0.0, 1.0, 53)
+    assert np.array_equal(interpolate(POS, same, at, rule), np.repeat(y[:1], 53, axis=0))
+
+
+@pytest.mark.parametrize("rule", ["linear", "pchip"])
+def test_family_object_at_stations_and_range(rule):
+    rng = np.random.default_rng(6)
+    a = -0.08 + 0.02 * rng.normal(size=(3, 5)) + 0.03j + 0.01j * rng.normal(size=(3, 5))
+    fam = Family(("r", "m", "t"), np.array([0.1, 0.5, 0.9]), a, np.array([14.0, 11.0, 9.5]),
+                 rule)
+    sec = fam.section_at([0.1, 0.5, 0.9])
+    assert np.array_equal(sec.coefficients, a)
+    assert np.array_equal(sec.te_angle, np.radians([14.0, 11.0, 9.5]))
+    with pytest.raises(ValueError, match="outside the family's stations"):
+        fam.section_at(0.95)
+    with pytest.raises(ValueError):
+        Family(("r", "t"), np.array([0.5, 0.5]), a[:2], np.array([10.0, 10.0]))
+
+
+def test_pchip_never_overshoots_between_stations():
+    # the monotone rule keeps every component between its two stations' values
+    y = np.array([0.0, 1.0, 1.1, 3.0])
+    at = np.linspace(0.0, 1.0, 401)
+    v = interpolate(POS, y, at, "pchip")
+    k = np.clip(np.searchsorted(POS, at, side="right") - 1, 0, 2)
+    lo, hi = np.minimum(y[k], y[k + 1]), np.maximum(y[k], y[k + 1])
+    assert np.all(v >= lo - 1e-15) and np.all(v <= hi + 1e-15)
+
+
+def test_check_positions_inside_each_interval():
+    at = check_positions([0.0, 0.4, 1.0], 8)
+    assert len(at) == 16
+    assert np.all((at[:8] > 0.0) & (at[:8] < 0.4)) and np.all((at[8:] > 0.4) & (at[8:] < 1.0))
+
+
+# --- fairness --------------------------------------------------------------------------------
+
+
+def test_fairness_rule():
+    tol = 1e-5
+    rows = np.array([
+        [0.16, 0.15, 0.13, 0.12, 0.10],  # monotone down: fair
+        [0.10, 0.12, 0.13, 0.15, 0.16],  # monotone up: fair
+        [0.16, 0.15, 0.151, 0.12, 0.10],  # a bump of 1e-3 on the way down
+        [0.12, 0.12, 0.1195, 0.12, 0.12],  # equal ends with a dip of 5e-4
+        [0.12, 0.12, 0.120004, 0.12, 0.120002],  # equal ends (to tol), within tol: fair
+    ])
+    g = fairness(rows, tol)
+    assert g[0] < 0 and g[1] < 0 and g[4] <= 0
+    assert g[2] == pytest.approx(1e-3 - tol, abs=1e-12)
+    assert g[3] == pytest.approx(5e-4 - tol, abs=1e-12)
+
+
+def test_constraints_interpolate_between_two_stations():
+    a = {"thickness": [0.2, 0.3], "cm": [-0.1, 0.0], "min_le_radius": 0.01,
+         "station_thickness": [[0.9, 0.02]], "camber": [0.0, 0.05]}
+    b = {"thickness": [0.1, 0.3], "cm": [-0.2, 0.0], "min_le_radius": 0.004,
+         "station_thickness": [[0.9, 0.01]]}
+    c = interpolate_constraints(a, b, 0.25)
+    assert c["thickness"] == pytest.approx([0.175, 0.3])
+    assert c["cm"] == pytest.approx([-0.125, 0.0])
+    assert c["min_le_radius"] == pytest.approx(0.0085)
+    assert c["station_thickness"] == [[0.9, pytest.approx(0.0175)]]
+    assert "camber" not in c  # only one station binds it: at that station alone
+
+
+# --- the family study -------------------------------------------------------------------------
+
+
+def test_family_study_expands_into_station_runs_then_the_joint_search():
+    st = parse_study(FAMILY, "fam.toml")
+    ids = [r.run_id for r in st.runs()]
+    assert ids == ["root.s1", "mid.s1", "tip.s1", "family.s1"]
+    root = st.runs()[0]
+    assert root.constraints["thickness"] == [0.14, 0.3]  # the station's own over the study's
+    assert st.runs()[1].constraints["thickness"] == [0.10, 0.3]
+    assert st.family == {"rule": "linear", "checks": 8, "fair_tolerance": 1e-5,
+                         "start": "stations", "step": 0.1, "evaluations": 0}
+    shape = parse_study(FAMILY + "[family]\nstart = \"shape\"\n", "f.toml")
+    assert [r.run_id for r in shape.runs()] == ["family.s1"]
+
+
+@pytest.mark.parametrize("text,needle", [
+    (FAMILY.replace("position = 0.4", "position = 0.0"), "station[2].position = 0 does not increase"),
+    (FAMILY.replace("cl = 0.6\n", ""), "missing key 'station[2].cl'"),
+    (FAMILY + "[[point]]\nname = \"p\"\ncl = 0.5\n", "both [[point]] and [[station]]"),
+    (FAMILY.replace("name = \"mid\"", "name = \"family\""), "kept for the family's joint search"),
+    (FAMILY + "[family]\nchecks = 0\n", "family.checks = 0 is not allowed"),
+    (FAMILY + "[family]\nrule = \"spline\"\n", "family.rule = 'spline' is not allowed"),
+    (FAMILY.replace("constraints = { thickness = [0.14, 0.3] }",
+                    "constraints = { thick = [0.14, 0.3] }"),
+     "unknown key 'station[1].constraints.thick'"),
+])
+def test_bad_family_study_gets_one_line(text, needle):
+    with pytest.raises(InputError) as err:
+        parse_study(text, "fam.toml")
+    assert needle in str(err.value) and "\n" not in str(err.value), str(err.value)
+
+
+def _problem(text=FAMILY):
+    st = parse_study(text, "fam.toml")
+    return st, build_problem(st, [r for r in st.runs() if r.family][0])
+
+
+def test_family_objective_is_the_weighted_sum_of_the_stations():
+    st, pb = _problem()
+    rng = np.random.default_rng(7)
+    y = 0.3 * rng.normal(size=(6, pb.param.dimension))
+    out = pb.evaluate(y)
+    secs = pb.param.station_sections(y)
+    own = [p.evaluate_sections(s) for p, s in zip(pb.station_problems, secs)]
+    want = sum(s.weight * o.objectives[:, 0] for s, o in zip(st.stations, own))
+    ok = out.status == 0
+    assert ok.any()
+    assert np.array_equal(out.objectives[ok, 0], want[ok])
+    assert np.array_equal(out.f[ok], want[ok])
+    # a station's own constraint columns are that station's problem's, to the bit
+    names = pb.constraint_names
+    j = names.index("root:thickness_low")
+    assert np.array_equal(out.constraints[ok, j], own[0].constraints[ok, 0])
+    assert "root-mid:fair_thickness" in names and "mid-tip:fair_camber" in names
+
+
+def test_identical_stations_make_a_fair_family_whose_in_between_sections_are_the_station():
+    st, pb = _problem(FAMILY.replace("constraints = { thickness = [0.14, 0.3] }", ""))
+    y = np.zeros((1, pb.param.dimension))  # every station at the shape's start
+    out = pb.evaluate(y)
+    assert out.status[0] == 0
+    names = pb.constraint_names
+    for k in ("root-mid:fair_thickness", "root-mid:fair_camber", "mid-tip:fair_thickness"):
+        assert out.constraints[0, names.index(k)] == -pb.fair_tolerance
+    sec = pb.param.station_sections(y)[0]
+    at = check_positions(pb.positions, 8)
+    coeffs = np.repeat(sec.coefficients[None], 3, axis=0)
+    assert np.array_equal(interpolate(pb.positions, coeffs, at)[:, 0], np.repeat(
+        sec.coefficients, len(at), axis=0))
+
+
+def test_an_invalid_in_between_section_makes_the_family_invalid():
+    # every station valid alone, one in-between section refused (here: its status forced to
+    # below_floor): the family takes that status and ranks below every valid family
+    from dataclasses import replace
+
+    from foilmap.design.problem import Outcome
+    from foilmap.section.status import Status
+
+    st, pb = _problem()
+    rng = np.random.default_rng(7)
+    y = 0.3 * rng.normal(size=(6, pb.param.dimension))
+    base = pb.evaluate(y)
+    assert np.all(base.status == 0)
+
+    class Refuses:
+        def __init__(self, inner):
+            self.inner = inner
+
+        def evaluate_sections(self, sec):
+            o = self.inner.evaluate_sections(sec)
+            status = o.status.copy()
+            status[2] = Status.BELOW_FLOOR
+            return Outcome(o.f, o.objectives, o.constraints, status, o.feasible, o.evaluation,
+                           o.peak)
+
+        def __getattr__(self, name):
+            return getattr(self.inner, name)
+
+    cps = list(pb.check_problems)
+    cps[11] = Refuses(cps[11])  # an in-between position of the second interval
+    out = replace(pb, check_problems=tuple(cps)).evaluate(y)
+    assert out.status[2] == Status.BELOW_FLOOR and not out.feasible[2]
+    assert np.all(out.status[[0, 1, 3, 4, 5]] == 0)
+    assert out.f[2] > np.max(out.f[[0, 1, 3, 4, 5]])
+    assert np.all(out.constraints[2] == 1.0) and np.isnan(out.objectives[2]).all()
+
+
+# --- family files ----------------------------------------------------------------------------
+
+
+def _family():
+    rng = np.random.default_rng(8)
+    a = -0.09 + 0.01 * rng.normal(size=(3, 4)) + 1j * (0.03 + 0.005 * rng.normal(size=(3, 4)))
+    return Family(("root", "mid", "tip"), np.array([0.0, 0.4, 1.0]), a,
+                  np.array([13.0, 11.5, 10.25]), "linear",
+                  ({"cl": 0.7}, {"cl": 0.6}, {"cl": 0.5}))
+
+
+def test_family_file_round_trip_is_exact(tmp_path):
+    fam = _family()
+    text = format_family("blade", fam, {"study": "fam"})
+    back = parse_family(text, "b.toml")
+    assert back.names == fam.names and back.rule == fam.rule
+    assert np.array_equal(back.coefficients, fam.coefficients)
+    assert np.array_equal(back.te_angle_deg, fam.te_angle_deg)
+    assert np.array_equal(back.positions, fam.positions)
+    p = tmp_path / "b.toml"
+    p.write_text(text)
+    rec = load_section_at(p, 0.4)  # a station: its section bit for bit
+    assert np.array_equal(rec.coefficients, fam.coefficients[1])
+    assert rec.te_angle_deg == 11.5
+    mid = load_section_at(p, 0.7)
+    assert np.array_equal(mid.to_set().coefficients, fam.section_at(0.7).coefficients)
+
+
+@pytest.mark.parametrize("at,needle", [
+    (1.5, "outside the family's stations (0 to 1)"),
+    (None, "is a family file: give --at POSITION"),
+])
+def test_family_file_position_checks(tmp_path, at, needle):
+    p = tmp_path / "b.toml"
+    p.write_text(format_family("blade", _family()))
+    with pytest.raises(InputError, match=needle.replace("(", r"\(").replace(")", r"\)")):
+        load_section_at(p, at)
+
+
+@pytest.mark.parametrize("edit,needle", [
+    (("position = 0.4", "position = 0.0"), "does not increase"),
+    (("rule = \"linear\"", "rule = \"cubic\""), "'family.rule' = 'cubic' is not allowed"),
+    (("te_angle_deg = 11.5", "te_angle_deg = 75.0"), "te_angle_deg"),
+    (("name = \"mid\"", "name = \"mid\"\ncolour = 1"), "unknown key 'station[2].colour'"),
+])
+def test_bad_family_file_gets_one_line(edit, needle):
+    text = format_family("blade", _family()).replace(*edit)
+    with pytest.raises(InputError) as err:
+        parse_family(text, "b.toml")
+    assert needle in str(err.value) and "\n" not in str(err.value), str(err.value)
+
+
+def test_a_section_file_with_at_is_refused(tmp_path):
+    from foilmap.store.sectionfile import format_section
+
+    p = tmp_path / "s.toml"
+    p.write_text(format_section("s", [-0.09 + 0.03j], 12.0))
+    with pytest.raises(InputError, match="--at 0.5 needs a family file"):
+        load_section_at(p, 0.5)
+    assert load_section_at(p, None).name == "s"
+
+
+def test_section_set_of_a_family_matches_stations():
+    fam = _family()
+    sec = fam.section_at(np.array([0.0, 1.0]))
+    assert isinstance(sec, SectionSet) and np.array_equal(sec.coefficients,
+                                                          fam.coefficients[[0, 2]])
