@@ -132,6 +132,18 @@ def _section_argument(p: argparse.ArgumentParser) -> None:
     p.add_argument("section", help="section file (TOML)")
 
 
+def _family_position(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--at", type=_finite("span position", 0.0, 1.0), metavar="POS",
+                   help="with a family file: the section at this span position")
+
+
+def _section_of(args):
+    """The section a command reads: the file, or its section at ``--at`` for a family file."""
+    from foilmap.store.familyfile import load_section_at
+
+    return load_section_at(args.section, args.at)
+
+
 def _json_option(p: argparse.ArgumentParser, what: str = "print one JSON object") -> None:
     p.add_argument("--json", action="store_true", help=what)
 
@@ -231,6 +243,7 @@ def _write_png(out: Path, figure: Callable, stream=None, dpi: int = 120) -> None
 
 def _options_evaluate(p):
     _section_argument(p)
+    _family_position(p)
     _add_operating_point(p)
     p.add_argument("--re", type=_finite("Reynolds number", 0.0, 1e10, open_lo=True),
                    metavar="RE", help="chord Reynolds number: adds Stratford's turbulent criterion")
@@ -249,7 +262,7 @@ def cmd_evaluate(args) -> int:
     from foilmap.report.text import format_summary
     from foilmap.store.sectionfile import write_text_atomic
 
-    res = evaluate(args.section, alpha=args.alpha, cl=args.cl, points=args.points,
+    res = evaluate(_section_of(args), alpha=args.alpha, cl=args.cl, points=args.points,
                    reynolds=args.re, proxy_end=args.proxy_end, mach=args.mach,
                    sigma=_sigma(args), compressibility=args.compressibility)
     if args.json:
@@ -271,6 +284,7 @@ def cmd_evaluate(args) -> int:
 
 def _options_sweep(p):
     _section_argument(p)
+    _family_position(p)
     g = p.add_mutually_exclusive_group(required=True)
     g.add_argument("--alpha", type=_range("angle", -30.0, 30.0), metavar="A:B:STEP",
                    help="angles of attack in degrees, e.g. -4:10:0.5")
@@ -291,7 +305,7 @@ def cmd_sweep(args) -> int:
     from foilmap.store.sectionfile import write_text_atomic
 
     png = _png_target(args.output, "sweep") if args.output else None
-    res = sweep(args.section, alpha=args.alpha, cl=args.cl, mach=args.mach, sigma=_sigma(args),
+    res = sweep(_section_of(args), alpha=args.alpha, cl=args.cl, mach=args.mach, sigma=_sigma(args),
                 compressibility=args.compressibility)
     if args.csv:
         write_text_atomic(args.csv, res.to_csv())
@@ -399,7 +413,7 @@ def cmd_plot(args) -> int:
     from foilmap.api.sections import evaluate
 
     out = _png_target(args.output, "plot")
-    res = evaluate(args.section, alpha=args.alpha, cl=args.cl, points=args.points).check()
+    res = evaluate(_section_of(args), alpha=args.alpha, cl=args.cl, points=args.points).check()
     _write_png(out, res.figure, dpi=130)
     return EXIT_OK
 
@@ -480,7 +494,7 @@ def _options_best(p):
     p.add_argument("folder", help="study folder")
     p.add_argument("--run", metavar="ID", help="one run's best (default: the whole study's)")
     p.add_argument("-o", "--output", required=True, metavar="SECTION.toml",
-                   help="section file to write")
+                   help="section file to write (a family file for a family study)")
 
 
 @command("best", "the best feasible design as a section file", _options_best)
@@ -491,6 +505,8 @@ def cmd_best(args) -> int:
     from foilmap.store.sectionfile import format_section, write_text_atomic
 
     d = best_design(args.folder, args.run)
+    if d.run.family:
+        return _best_family(args, d)
     text = format_section(f"{d.study_name}-{d.run_id}", d.coefficients, d.te_angle_deg,
                           d.provenance())
     write_text_atomic(args.output, text)
@@ -499,6 +515,58 @@ def cmd_best(args) -> int:
     for line in design_warnings(Path(args.folder)):
         if f" run {d.run_id} " in line:
             print(line)
+    print(CAUTION)
+    return EXIT_OK
+
+
+def _best_family(args, d) -> int:
+    """``best`` of a family study: the family file, and each station's price of continuity."""
+    from foilmap.api.families import best_family
+    from foilmap.report.family import format_stations
+    from foilmap.report.text import CAUTION
+    from foilmap.store.sectionfile import write_text_atomic
+
+    best = best_family(args.folder, d.run_id)
+    write_text_atomic(args.output, best.to_toml())
+    print(f"best feasible family of {d.run_id} (objective {d.fun:.6g}, evaluation "
+          f"{d.evaluation}) written to {args.output}")
+    print(format_stations(best.stations))
+    print(CAUTION)
+    return EXIT_OK
+
+
+def _options_family(p):
+    p.add_argument("family", help="family file (TOML), as foilmap best writes for a family study")
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--at", type=_finite("span position", 0.0, 1.0), metavar="POS",
+                   help="write the section at this span position as a section file")
+    g.add_argument("--loft", type=_int_range("loft positions", 2, 10000), metavar="N",
+                   help="write coordinates at N span positions, first station to last, in one "
+                        "CSV table with a position column")
+    p.add_argument("-o", "--output", required=True, metavar="FILE",
+                   help="SECTION.toml with --at, FILE.csv with --loft")
+    p.add_argument("--points", type=_int_range("points", 11, 100001), default=201, metavar="N",
+                   help="points per section in the --loft table (default 201, cosine spacing)")
+
+
+@command("family", "a family's section at a span position, or its loft table", _options_family)
+def cmd_family(args) -> int:
+    from foilmap.api.families import family_section, load_family, loft
+    from foilmap.report.text import CAUTION
+    from foilmap.store.sectionfile import format_section, write_text_atomic
+
+    fam = load_family(args.family)
+    if args.at is not None:
+        rec = family_section(args.family, args.at)
+        write_text_atomic(args.output, format_section(rec.name, rec.coefficients,
+                                                      rec.te_angle_deg, rec.provenance))
+        print(f"section at span position {args.at:g} of {args.family} written to "
+              f"{args.output}")
+    else:
+        lf = loft(fam, args.loft, points=args.points)
+        write_text_atomic(args.output, lf.to_csv())
+        print(f"{args.loft} sections of {args.points} points, span positions "
+              f"{lf.positions[0]:g} to {lf.positions[-1]:g}, written to {args.output}")
     print(CAUTION)
     return EXIT_OK
 
@@ -751,7 +819,8 @@ def cmd_export(args) -> int:
 #: the order ``foilmap --help`` lists the commands in (commands not named here follow, in the
 #: order they were registered)
 ORDER = ("evaluate", "sweep", "report", "inverse", "coords", "plot", "run", "resume", "status",
-         "best", "plot-run", "demo", "naca", "fit", "fronts", "pick", "screen", "export")
+         "best", "family", "plot-run", "demo", "naca", "fit", "fronts", "pick", "screen",
+         "export")
 
 
 def build_parser() -> argparse.ArgumentParser:

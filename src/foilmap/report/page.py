@@ -267,7 +267,12 @@ def _study_section(folder: StudyFolder) -> str:
             warnings.append(f"run {r['run']}: {plural(unproven, 'evaluation')} rejected unproven "
                             "(a certificate gave up before proving the section valid or not)")
     warnings += [w.removeprefix("warning: ") for w in floor_warnings(folder.path)]
-    designs, dw = _designs(folder)
+    if study.is_family:
+        from foilmap.report.family import family_html
+
+        designs, dw = family_html(folder, _img, _table)
+    else:
+        designs, dw = _designs(folder)
     warnings += dw
     parts.append(designs)
     if warnings:

@@ -39,7 +39,7 @@ from foilmap.store.sectionfile import (
 )
 
 __all__ = ["load_family", "parse_family", "format_family", "is_family_text",
-           "load_section_at"]
+           "load_section_at", "section_record_at"]
 
 _TOP = ("family", "station", "provenance")
 _FAMILY_KEYS = ("name", "rule")
@@ -181,11 +181,20 @@ def load_section_at(path: str | os.PathLike, at: float | None) -> SectionRecord:
         lo, hi = fam.span
         raise InputError(f"{str(path)!r} is a family file: give --at POSITION (a span position "
                          f"from {lo:g} to {hi:g})")
+    return section_record_at(fam, at, str(path))
+
+
+def section_record_at(fam: Family, at: float, source: str | None = None) -> SectionRecord:
+    """The section at span position ``at`` of a family as a :class:`SectionRecord` named
+    ``FAMILY@POSITION`` (at a station's position, the station's section bit for bit)."""
     try:
         fam.check_position(at)
     except ValueError as exc:
-        raise InputError(f"--at {at:g}: {exc} of {str(path)!r}") from None
+        where = f" of {source!r}" if source else ""
+        raise InputError(f"--at {float(at):g}: {exc}{where}") from None
     a, tau_deg = fam.coefficients_at(at)
-    name = f"{fam.provenance.get('name', 'family')}@{at:g}"
-    return SectionRecord(name, float(tau_deg[0]), a[0],
-                         {"family": str(path), "position": float(at)})
+    name = f"{(fam.provenance or {}).get('name', 'family')}@{float(at):g}"
+    prov = {"position": float(at)}
+    if source:
+        prov["family"] = source
+    return SectionRecord(name, float(tau_deg[0]), a[0], prov)
