@@ -68,7 +68,7 @@ def _new_es(problem: Problem, search: dict, seed: int, restart: int, popsize: in
     if popsize:
         opts["popsize"] = int(popsize)
     es = cma.CMAEvolutionStrategy(list(p.x0()), 1.0, opts)
-    if problem.constraint_names:
+    if problem.constraint_names and not getattr(problem, "ranks_constraints", False):
         _tear_up_constraints(es)
     return es
 
@@ -211,7 +211,7 @@ def step(state: SearchState, problem: Problem, search: dict) -> tuple[Generation
     with warnings.catch_warnings():
         # cma mentions an optional archive package for convergence tracking; not needed here
         warnings.filterwarnings("ignore", message=r".*moarchiving", category=UserWarning)
-        if out.constraints.shape[1]:
+        if out.constraints.shape[1] and not getattr(problem, "ranks_constraints", False):
             scaled = out.constraints / problem.constraint_scales
             es.tell(list(x), list(out.f), constraints_values=[list(r) for r in scaled])
         else:
