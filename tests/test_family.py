@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from scipy.interpolate import PchipInterpolator
@@ -320,3 +322,115 @@ def test_section_set_of_a_family_matches_stations():
     sec = fam.section_at(np.array([0.0, 1.0]))
     assert isinstance(sec, SectionSet) and np.array_equal(sec.coefficients,
                                                           fam.coefficients[[0, 2]])
+
+
+# --- a family study run end to end (in this process) ----------------------------------------
+
+TINY = """
+[study]
+name = "tiny-family"
+seeds = [3]
+[shape]
+coefficients = 3
+[[station]]
+name = "root"
+position = 0.0
+cl = 0.6
+constraints = { thickness = [0.15, 0.3] }
+[[station]]
+name = "mid"
+position = 0.5
+cl = 0.5
+[[station]]
+name = "tip"
+position = 1.0
+cl = 0.4
+[family]
+evaluations = 240
+[objectives]
+peak_suction = 1.0
+[constraints]
+thickness = [0.11, 0.3]
+min_le_radius = 0.005
+[search]
+max_evaluations = 200
+popsize = 8
+"""
+
+
+def _run_family(out, stop_after=None):
+    out = Path(out)
+    from foilmap.run.single import execute_run
+    from foilmap.store.folder import StudyFolder
+
+    st = parse_study(TINY, "tiny.toml")
+    StudyFolder.prepare(st, out, None)
+    fam_run = [r for r in st.runs() if r.family][0]
+    calls = {"n": 0}
+
+    def stop():  # counts the joint search's generations (its log exists once it has begun)
+        if (out / "runs" / "family.s3.h5").exists():
+            calls["n"] += 1
+        return stop_after is not None and calls["n"] == stop_after
+
+    try:
+        execute_run(st, fam_run, out, should_stop=stop)  # runs its station runs first
+    except SystemExit as exc:
+        assert exc.code == 143
+        return False
+    return True
+
+
+def test_family_study_end_to_end(tmp_path):
+    # the family run runs its station runs first, starts from their bests, and its best family
+    # meets every station's Cl exactly and its constraints, and is valid and fair at 8
+    # positions per interval, checked through the family file and the numpy reference route
+    from foilmap.api.families import best_family
+    from foilmap.design.family import interpolate_point
+    from foilmap.section.evaluation import analyse
+    from foilmap.store.familyfile import format_family
+
+    out = tmp_path / "f"
+    assert _run_family(out)
+    best = best_family(out)
+    assert [r["station"] for r in best.stations] == ["root", "mid", "tip"]
+    assert all(r["independent"] is not None for r in best.stations)
+    fam = parse_family(best.to_toml(), "best.toml")
+    st = parse_study(TINY, "tiny.toml")
+    for s in st.stations:
+        an = analyse(fam.section_at(s.position), cl=s.point.cl, proxies=())
+        ev = an.evaluation
+        assert ev.status[0] == 0
+        assert abs(ev.cl[0] - s.point.cl) < 1e-12
+        lo, hi = s.constraints["thickness"]
+        assert lo <= ev.thickness[0] <= hi
+        assert ev.le_radius[0] >= 0.005
+    for i in range(2):
+        a, b = st.stations[i], st.stations[i + 1]
+        t, c = [], []
+        for k in range(0, 10):
+            u = k / 9
+            pt = interpolate_point(a.point, b.point, u, "x")
+            ev = analyse(fam.section_at(a.position + (b.position - a.position) * u),
+                         cl=pt.cl, proxies=(), floor=0.005).evaluation
+            assert ev.status[0] == 0, (i, k)
+            t.append(ev.thickness[0])
+            c.append(ev.camber[0])
+        for seq in (t, c):
+            assert fairness(np.array([seq]), 1e-5)[0] <= 1e-12, (i, seq)
+    assert format_family("x", fam) == format_family("x", parse_family(
+        format_family("x", fam), "again"))
+
+
+def test_family_run_resumes_bit_identically(tmp_path):
+    from foilmap.store.runlog import read_run
+
+    whole, cut = tmp_path / "whole", tmp_path / "cut"
+    assert _run_family(whole)
+    assert not _run_family(cut, stop_after=5)  # stopped in the joint search's 5th generation
+    assert _run_family(cut)
+    a = read_run(whole / "runs" / "family.s3.h5")
+    b = read_run(cut / "runs" / "family.s3.h5")
+    assert a.evaluations == b.evaluations == 240
+    for k in ("x", "f", "constraints", "status"):
+        assert np.array_equal(a.evals[k], b.evals[k], equal_nan=True), k
