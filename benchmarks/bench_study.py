@@ -33,7 +33,8 @@ from pathlib import Path
 import numpy as np
 
 ROOT = Path(__file__).resolve().parents[1]
-EXAMPLES = ("hydrofoil-front-wing", "turbine-midspan", "front-wing-coefficients")
+EXAMPLES = ("hydrofoil-front-wing", "turbine-midspan", "front-wing-coefficients",
+            "tidal-blade-family")
 
 #: a held-back study (invented scenario, not shipped): a symmetric-looking rudder-like section
 #: held over Cl -0.3..0.3 with a leading-edge radius floor and the Stratford margin at 2e6
@@ -139,10 +140,38 @@ def popsize(folder: Path) -> int:
     return int(read_run(logs[0]).gen["popsize"][0]) if logs else 0
 
 
-def run_one(study: Path, budget: int | None, tmp: Path) -> dict:
+def family_figures(folder: Path) -> dict:
+    """A family study's joint search: its evaluations (each evaluates every station and every
+    checked in-between section), its own seconds, and when it found its final best (the
+    evaluation and the seconds since the study began, station runs included)."""
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.runlog import read_run
+
+    f = StudyFolder(folder)
+    index = {r["run"]: r for r in json.loads((folder / "index.json").read_text())["runs"]}
+    out = {}
+    for r in f.study.runs():
+        log = read_run(f.log_path(r.run_id))
+        if not r.family:
+            continue
+        best = log.best()
+        g = int(np.searchsorted(log.gen["evaluations"], best["index"] + 1)) if best else -1
+        stations = [s for s in f.study.runs() if not s.family]
+        before = sum(float(index[s.run_id].get("elapsed_s") or 0.0) for s in stations)
+        out[r.run_id] = {
+            "evaluations": log.evaluations, "seconds": round(float(log.gen["time"][-1]), 1),
+            "sections_per_evaluation": len(f.study.stations) + (len(f.study.stations) - 1)
+            * f.study.family["checks"],
+            "best_at_evaluation": None if best is None else best["index"] + 1,
+            "best_at_s": None if best is None else round(float(log.gen["time"][g]), 1),
+            "station_runs_s_summed": round(before, 1)}
+    return out
+
+
+def run_one(study: Path, budget: int | None, tmp: Path, workers: int = 1) -> dict:
     out = tmp / study.stem
     cmd = [sys.executable, "-m", "foilmap.cli", "run", str(study), "--out", str(out),
-           "--workers", "1"]
+           "--workers", str(workers)]
     if budget:
         cmd += ["--budget", str(budget)]
     t0 = time.perf_counter()
@@ -153,7 +182,9 @@ def run_one(study: Path, budget: int | None, tmp: Path) -> dict:
     n = evaluations(out)
     row = {"study": study.stem, "evaluations": n, "wall_s": round(wall, 2),
            "evals_per_s": round(n / wall, 1), "popsize": popsize(out)}
-    if budget:
+    if "[[station]]" in study.read_text():
+        row["family"] = family_figures(out)
+    elif budget:
         row.update(phases(out))
     return row
 
@@ -165,6 +196,8 @@ def main() -> None:
     ap.add_argument("--budget", type=int, default=None, help="one long run of this many "
                     "evaluations per study, with per-phase figures (default: every run of each "
                     "study at its own budget)")
+    ap.add_argument("--workers", type=int, default=1, help="worker processes per study "
+                    "(default 1: the rate of one core)")
     args = ap.parse_args()
     t0 = time.perf_counter()
     subprocess.run([sys.executable, "-c", "from foilmap.section import _compiled; _compiled.warm_up()"],
@@ -177,7 +210,7 @@ def main() -> None:
             text = OWN[name] if name in OWN else (ROOT / "studies" / f"{name}.toml").read_text()
             study = tmp / f"{name}.toml"
             study.write_text(one_run(text) if args.budget else text)
-            rows.append(run_one(study, args.budget, tmp))
+            rows.append(run_one(study, args.budget, tmp, args.workers))
     out = {"studies": rows, "compile_or_load_s": round(compile_s, 2),
            "min_evals_per_s": min(r["evals_per_s"] for r in rows),
            "cores": os.cpu_count()}
@@ -187,6 +220,10 @@ def main() -> None:
         for r in rows:
             print(f"{r['study']:28s} {r['evaluations']:7d} evals {r['wall_s']:7.2f} s "
                   f"{r['evals_per_s']:9.1f} evals/s  popsize {r['popsize']}")
+            for rid, fam in r.get("family", {}).items():
+                print(f"{'':28s} {rid}: {fam['evaluations']} evaluations of "
+                      f"{fam['sections_per_evaluation']} sections in {fam['seconds']} s, best "
+                      f"at evaluation {fam['best_at_evaluation']} ({fam['best_at_s']} s)")
             if "first_tenth" in r:
                 print(f"{'':28s} first tenth {r['first_tenth']['evals_per_s']:9.1f}/s, last "
                       f"quarter {r['last_quarter']['evals_per_s']:9.1f}/s (ratio "

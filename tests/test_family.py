@@ -434,3 +434,69 @@ def test_family_run_resumes_bit_identically(tmp_path):
     assert a.evaluations == b.evaluations == 240
     for k in ("x", "f", "constraints", "status"):
         assert np.array_equal(a.evals[k], b.evals[k], equal_nan=True), k
+
+
+# --- the commands ----------------------------------------------------------------------------
+
+
+def _family_file(tmp_path, positions=(0.2, 0.5, 0.9)):
+    fam = _family()
+    fam = Family(fam.names, np.array(positions), fam.coefficients, fam.te_angle_deg, fam.rule,
+                 fam.figures)
+    p = tmp_path / "blade.toml"
+    p.write_text(format_family("blade", fam))
+    return p, fam
+
+
+def test_family_commands(tmp_path):
+    import csv
+
+    from conftest import cli
+
+    from foilmap.store.sectionfile import load_section
+
+    p, fam = _family_file(tmp_path)
+    r = cli("family", p, "--at", "0.5", "-o", tmp_path / "s.toml")
+    assert r.returncode == 0, r.stderr
+    rec = load_section(tmp_path / "s.toml")  # a station: its section, bit for bit
+    assert np.array_equal(rec.coefficients, fam.coefficients[1]) and rec.te_angle_deg == 11.5
+    r = cli("family", p, "--loft", "4", "--points", "21", "-o", tmp_path / "loft.csv")
+    assert r.returncode == 0, r.stderr
+    lines = [ln for ln in (tmp_path / "loft.csv").read_text().splitlines()
+             if not ln.startswith("#")]
+    rows = list(csv.DictReader(lines))
+    assert len(rows) == 4 * 21
+    assert sorted({float(r["position"]) for r in rows}) == pytest.approx([0.2, 13 / 30, 2 / 3,
+                                                                          0.9])
+    r = cli("evaluate", p, "--at", "0.5", "--cl", "0.6", "--json")
+    assert r.returncode == 0, r.stderr
+    alone = cli("evaluate", tmp_path / "s.toml", "--cl", "0.6", "--json")
+    import json
+
+    a, b = json.loads(r.stdout), json.loads(alone.stdout)
+    assert a["cp_min"] == b["cp_min"] and a["alpha_deg"] == b["alpha_deg"]
+    r = cli("sweep", p, "--at", "0.7", "--alpha", "0:4:2", "--json")
+    assert r.returncode == 0, r.stderr
+    assert len(json.loads(r.stdout)["rows"]) == 3
+
+
+@pytest.mark.parametrize("args,message", [
+    (["evaluate", "{fam}", "--at", "0.1", "--cl", "0.5"],
+     "--at 0.1: span position 0.1 is outside the family's stations (0.2 to 0.9)"),
+    (["family", "{fam}", "--at", "0.95", "-o", "{tmp}/x.toml"], "outside the family's stations"),
+    (["evaluate", "{fam}", "--cl", "0.5"], "is a family file: give --at POSITION"),
+    (["family", "{fam}", "--loft", "1", "-o", "{tmp}/x.csv"], "loft positions 1 is out of range"),
+    (["run", "{study}"], "does not increase"),
+])
+def test_family_bad_input_one_line_exit_2(tmp_path, args, message):
+    from conftest import cli
+
+    p, _ = _family_file(tmp_path)
+    study = tmp_path / "study.toml"
+    study.write_text(FAMILY.replace("position = 0.4", "position = 0.0"))
+    r = cli(*[a.format(fam=p, tmp=tmp_path, study=study) for a in args])
+    assert r.returncode == 2
+    err = r.stderr.strip().splitlines()
+    assert len(err) == 1 and message in err[0], r.stderr
+    assert "Traceback" not in r.stderr
+    assert not (tmp_path / "x.toml").exists() and not (tmp_path / "x.csv").exists()

@@ -12,6 +12,10 @@ evaluate, sweep, inverse, fit, screen, coordinates, export
     ``--json``).
 compare_fronts, report_page, status, best_design, pick
     Study folders: ``foilmap fronts``, ``report``, ``status``, ``best`` and ``pick``.
+load_family, best_family, loft, family_section, Family
+    Section families along a span: a family file (``.section_at(pos)`` is the exact section
+    at a span position, a ``SectionSet``), a family study's best family with each station's
+    price of continuity, the loft table and the section at a position (``foilmap family``).
 load_study, run_study, open_results
     Studies from Python (notebooks): a validated study, its runs into a folder, and the folder's
     results (:class:`~foilmap.api.StudyResults`: ``.runs``, ``.best()``, ``.front()``,
@@ -55,6 +59,11 @@ _PUBLIC = {
     "status": "foilmap.api.folders",
     "best_design": "foilmap.api.folders",
     "pick": "foilmap.api.folders",
+    "load_family": "foilmap.api.families",
+    "best_family": "foilmap.api.families",
+    "loft": "foilmap.api.families",
+    "family_section": "foilmap.api.families",
+    "Family": "foilmap.design.family",
     "run_study": "foilmap.api.studies",
     "open_results": "foilmap.api.studies",
     "StudyResults": "foilmap.api.studies",
