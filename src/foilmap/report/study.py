@@ -231,7 +231,8 @@ def runs_figure(out: Path, best_count: int = 4):
     if len(finals) <= 12:
         ax_c.legend(fontsize=7, frameon=True, framealpha=0.85, edgecolor="0.85",
                     ncol=2 if len(finals) > 6 else 1, loc="upper right")
-    best = sorted(finals)[:best_count]
+    # a family run's design is several sections: the page's family block shows them
+    best = sorted((f, rid) for f, rid in finals if not folder.run_spec(rid).family)[:best_count]
     for f, rid in best:
         d = folder.best_design(rid)
         an = analyse(d.section, cl=d.design_cl, proxies=())
