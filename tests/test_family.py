@@ -500,3 +500,59 @@ def test_family_bad_input_one_line_exit_2(tmp_path, args, message):
     assert len(err) == 1 and message in err[0], r.stderr
     assert "Traceback" not in r.stderr
     assert not (tmp_path / "x.toml").exists() and not (tmp_path / "x.csv").exists()
+
+
+@pytest.mark.parametrize("method", ["comocma", "epsilon"])
+def test_multi_objective_family_runs(tmp_path, method):
+    # a family's fronts: each objective the stations' weighted sum; the ε sweep's family runs
+    # start from the station runs of their own level
+    from foilmap.run.single import execute_run
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.runlog import read_run
+
+    text = TINY.replace("[objectives]\npeak_suction = 1.0\n",
+                        "[objectives]\npeak_suction = 1.0\narea = 1.0\n")
+    text = text.replace("max_evaluations = 200\npopsize = 8\n",
+                        "max_evaluations = 60\npopsize = 6\n")
+    text = text.replace("evaluations = 240", "evaluations = 60")
+    if method == "comocma":
+        text += "method = \"comocma\"\nkernels = 2\n[fronts]\nreference_point = [3.0, 1.0]\n"
+    else:
+        text += "method = \"epsilon\"\nepsilon_levels = [0.4, 0.5]\n"
+    st = parse_study(text, "mo.toml")
+    StudyFolder.prepare(st, tmp_path, None)
+    fam_runs = [r for r in st.runs() if r.family]
+    assert len(fam_runs) == (1 if method == "comocma" else 2)
+    for r in fam_runs:
+        execute_run(st, r, tmp_path)
+        log = read_run(tmp_path / "runs" / f"{r.run_id}.h5")
+        assert log.evaluations >= 60 and log.objective_names == ["peak_suction", "area"]
+        ok = log.evals["status"] == 0
+        assert ok.any()
+        if method == "epsilon":
+            assert log.constraint_names[-1] == "epsilon_area"
+            assert (tmp_path / "runs" / f"root.e{r.epsilon_index}.s3.h5").exists()
+
+
+def test_pick_from_a_family_front_writes_a_family_file(tmp_path):
+    from conftest import cli
+
+    from foilmap.run.single import execute_run
+    from foilmap.store.folder import StudyFolder
+
+    text = TINY.replace("[objectives]\npeak_suction = 1.0\n",
+                        "[objectives]\npeak_suction = 1.0\narea = 1.0\n")
+    text = text.replace("max_evaluations = 200\npopsize = 8\n",
+                        "max_evaluations = 60\npopsize = 6\nmethod = \"comocma\"\nkernels = 2\n")
+    text = text.replace("evaluations = 240", "evaluations = 300")
+    text += "[fronts]\nreference_point = [3.0, 1.0]\n"
+    st = parse_study(text, "mo.toml")
+    out = tmp_path / "mo"
+    StudyFolder.prepare(st, out, None)
+    execute_run(st, [r for r in st.runs() if r.family][0], out)
+    ids, names, pts = StudyFolder(out).merged_front()
+    assert ids and all(i.startswith("family.") for i in ids)  # not the stations' fronts
+    r = cli("pick", out, "--knee", "-o", tmp_path / "k.toml")
+    assert r.returncode == 0, r.stderr
+    fam = parse_family((tmp_path / "k.toml").read_text(), "k.toml")
+    assert fam.names == ("root", "mid", "tip")

@@ -729,8 +729,15 @@ def cmd_pick(args) -> int:
     d = pick(args.folder, nearest=nearest, knee=args.knee, index=args.index, run=args.run)
     prov = {**d.provenance(), "design": d.id,
             **{f"objective_{k}": v for k, v in d.objectives.items()}}
-    write_text_atomic(args.output, format_section(f"{d.run_id}-{d.evaluation}", d.coefficients,
-                                                  d.te_angle_deg, prov))
+    if d.run.family:  # a family study's front: the family file
+        from foilmap.api.families import family_design
+        from foilmap.store.familyfile import format_family
+
+        fam = family_design(args.folder, d).family
+        write_text_atomic(args.output, format_family(f"{d.run_id}-{d.evaluation}", fam, prov))
+    else:
+        write_text_atomic(args.output, format_section(f"{d.run_id}-{d.evaluation}",
+                                                      d.coefficients, d.te_angle_deg, prov))
     vals = ", ".join(f"{k} {v:.6g}" for k, v in d.objectives.items())
     print(f"design {d.id} ({vals}) written to {args.output}")
     print(CAUTION)

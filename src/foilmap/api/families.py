@@ -18,7 +18,8 @@ import numpy as np
 from foilmap.design.family import Family
 from foilmap.errors import InputError
 
-__all__ = ["load_family", "best_family", "BestFamily", "loft", "Loft", "family_section"]
+__all__ = ["load_family", "best_family", "family_design", "BestFamily", "loft", "Loft",
+           "family_section"]
 
 
 def load_family(path: str | os.PathLike) -> Family:
@@ -66,16 +67,25 @@ class BestFamily:
 
 def best_family(folder, run: str | None = None) -> BestFamily:
     """The best feasible family of a family study's folder (or of one of its family runs)."""
-    from foilmap.design.family import build_problem, family_of
     from foilmap.store.folder import StudyFolder
-    from foilmap.store.runlog import read_run
 
     f = StudyFolder(folder)
     study = f.study
     if not study.is_family:
         raise InputError(f"study {study.name!r} designs single sections, not a family: use "
                          "foilmap best (a section file)")
-    d = f.best_design(run)
+    return family_design(f, f.best_design(run))
+
+
+def family_design(folder, d) -> BestFamily:
+    """The family of one logged design ``d`` of a family run (from ``best`` or ``pick``), with
+    each station's objective beside its independent station run's."""
+    from foilmap.design.family import build_problem, family_of
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.runlog import read_run
+
+    f = folder if isinstance(folder, StudyFolder) else StudyFolder(folder)
+    study = f.study
     if not d.run.family:
         raise InputError(f"run {d.run_id!r} is a station run; its family's run is "
                          f"family{d.run_id[len(d.run.point.name):]}")

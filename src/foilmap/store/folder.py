@@ -339,6 +339,10 @@ class StudyFolder:
         fronts = self.fronts()
         if not fronts:
             raise InputError(f"{str(self.path)!r} has no run logs yet")
+        if run_id is None and self.study.is_family:  # the family's fronts, not its stations'
+            fronts = [f for f in fronts if all(s.family for s in f.specs)]
+            if not fronts:
+                raise InputError(f"{str(self.path)!r} has no family run log yet")
         if run_id is not None:
             fronts = [f for f in fronts if f.run == run_id or
                       run_id in [s.run_id for s in f.specs]]
