@@ -187,7 +187,7 @@ def _problem(text=FAMILY):
 def test_family_objective_is_the_weighted_sum_of_the_stations():
     st, pb = _problem()
     rng = np.random.default_rng(7)
-    y = 0.3 * rng.normal(size=(6, pb.param.dimension))
+    y = 0.2 * rng.normal(size=(24, pb.param.dimension))  # some feasible, some not
     out = pb.evaluate(y)
     secs = pb.param.station_sections(y)
     own = [p.evaluate_sections(s) for p, s in zip(pb.station_problems, secs)]
@@ -195,7 +195,15 @@ def test_family_objective_is_the_weighted_sum_of_the_stations():
     ok = out.status == 0
     assert ok.any()
     assert np.array_equal(out.objectives[ok, 0], want[ok])
-    assert np.array_equal(out.f[ok], want[ok])
+    feas = out.feasible
+    assert feas.any() and (ok & ~feas).any()
+    assert np.array_equal(out.f[feas], want[feas])
+    # feasibility first: a valid but infeasible family ranks after every feasible one, by its
+    # summed scaled violations
+    late = ok & ~feas
+    viol = np.maximum(out.constraints[late] / pb.constraint_scales, 0.0).sum(axis=1)
+    worst = np.max(want[feas])
+    assert np.allclose(out.f[late], worst + 1.0 + abs(worst) + viol, rtol=0, atol=1e-12)
     # a station's own constraint columns are that station's problem's, to the bit
     names = pb.constraint_names
     j = names.index("root:thickness_low")

@@ -10,13 +10,15 @@ the coordinates at ``n`` span positions in one table.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from foilmap.design.family import Family
 from foilmap.errors import InputError
+
+from foilmap.store.familyfile import BestFamily, best_family, family_design
 
 __all__ = ["load_family", "best_family", "family_design", "BestFamily", "loft", "Loft",
            "family_section"]
@@ -45,64 +47,6 @@ def family_section(family, at: float):
 
     src = str(family) if isinstance(family, (str, os.PathLike)) else None
     return section_record_at(_family(family), at, src)
-
-
-@dataclass
-class BestFamily:
-    """A family study's best family: ``.family`` (a :class:`Family`), ``.design`` (the logged
-    design it comes from) and ``.stations``: per station its objective in the family beside
-    the best of its independent run (None where the folder holds none), and ``.price`` the
-    relative difference — the price of continuity."""
-
-    family: Family
-    design: object
-    stations: list = field(default_factory=list)
-
-    def to_toml(self) -> str:
-        from foilmap.store.familyfile import format_family
-
-        d = self.design
-        return format_family(f"{d.study_name}-{d.run_id}", self.family, d.provenance())
-
-
-def best_family(folder, run: str | None = None) -> BestFamily:
-    """The best feasible family of a family study's folder (or of one of its family runs)."""
-    from foilmap.store.folder import StudyFolder
-
-    f = StudyFolder(folder)
-    study = f.study
-    if not study.is_family:
-        raise InputError(f"study {study.name!r} designs single sections, not a family: use "
-                         "foilmap best (a section file)")
-    return family_design(f, f.best_design(run))
-
-
-def family_design(folder, d) -> BestFamily:
-    """The family of one logged design ``d`` of a family run (from ``best`` or ``pick``), with
-    each station's objective beside its independent station run's."""
-    from foilmap.design.family import build_problem, family_of
-    from foilmap.store.folder import StudyFolder
-    from foilmap.store.runlog import read_run
-
-    f = folder if isinstance(folder, StudyFolder) else StudyFolder(folder)
-    study = f.study
-    if not d.run.family:
-        raise InputError(f"run {d.run_id!r} is a station run; its family's run is "
-                         f"family{d.run_id[len(d.run.point.name):]}")
-    problem = build_problem(study, d.run)
-    fam = family_of(study, problem, d.x, d.provenance())
-    rows = problem.station_figures(d.x)
-    suffix = d.run_id[len(d.run.point.name):]
-    for r in rows:
-        r["independent"] = None
-        sid = r["station"] + suffix
-        if f.log_path(sid).exists():
-            b = read_run(f.log_path(sid)).best()
-            if b is not None:
-                r["independent"] = float(b["f"])
-        r["price"] = (None if not r["independent"] else
-                      (r["f"] - r["independent"]) / abs(r["independent"]))
-    return BestFamily(fam, d, rows)
 
 
 @dataclass

@@ -136,7 +136,7 @@ def _figures(study, family, sched):
 def family_html(folder, img, table) -> tuple[str, list[str]]:
     """The report page's block for a family study (``img(fig, alt)`` and ``table(head,
     rows)`` are the page's own helpers) and its warnings."""
-    from foilmap.api.families import best_family
+    from foilmap.store.familyfile import best_family
     from foilmap.errors import InputError
 
     try:
