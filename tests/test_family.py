@@ -442,6 +442,7 @@ def test_family_bad_input_one_line_exit_2(tmp_path, args, message):
     assert not (tmp_path / "x.toml").exists() and not (tmp_path / "x.csv").exists()
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("method", ["comocma", "epsilon"])
 def test_multi_objective_family_runs(tmp_path, method):
     # a family's fronts: each objective the stations' weighted sum; the ε sweep's family runs
@@ -474,6 +475,7 @@ def test_multi_objective_family_runs(tmp_path, method):
             assert (tmp_path / "runs" / f"root.e{r.epsilon_index}.s3.h5").exists()
 
 
+@pytest.mark.slow
 def test_pick_from_a_family_front_writes_a_family_file(tmp_path):
     from conftest import cli
 
