@@ -169,7 +169,8 @@ def _run_locked(study, out, workers, budget, progress, engine, scheduler) -> lis
 
         _compiled.warm_up()
     args = (study,)
-    with _single_threaded_kernels():  # a LocalCluster starts its workers here
+    # a LocalCluster starts its workers here: single-threaded, and without the caller's script
+    with _single_threaded_kernels(), workers_without_main():
         if engine == "dask":
             from foilmap.run.cluster import DaskBackend
 
