@@ -404,6 +404,7 @@ def cmd_coords(args) -> int:
 
 def _options_plot(p):
     _section_argument(p)
+    _family_position(p)
     _add_operating_point(p)
     p.add_argument("-o", "--output", required=True, metavar="FILE.png", help="output PNG")
 
