@@ -109,3 +109,25 @@ def test_invalid_shape_is_one_line(tmp_path):
     assert r.returncode == 2
     assert len(r.stderr.strip().splitlines()) == 1
     assert "not usable" in r.stderr
+
+
+def test_the_command_table_is_the_parser(monkeypatch):
+    # every command comes from the table, and a command registered there is on the command line
+    from foilmap import cli as cli_module
+
+    parser = cli_module.build_parser()
+    sub = next(a for a in parser._actions if a.dest == "command")
+    assert list(sub.choices) == [n for n in cli_module.ORDER if n in cli_module.COMMANDS] + [
+        n for n in cli_module.COMMANDS if n not in cli_module.ORDER]
+    monkeypatch.setattr(cli_module, "COMMANDS", dict(cli_module.COMMANDS))
+
+    def options(p):
+        p.add_argument("--times", type=cli_module._int_range("times", 1, 3), default=1)
+
+    seen = []
+    cli_module.command("echo-test", "a command for this test", options)(
+        lambda args: seen.append(args.times) or 0)
+    assert cli_module.main(["echo-test", "--times", "2"]) == 0 and seen == [2]
+    assert cli_module.main(["echo-test", "--times", "9"]) == 2  # bad input: exit 2, one line
+    with pytest.raises(ValueError, match="registered twice"):
+        cli_module.command("echo-test", "again", options)(lambda args: 0)
