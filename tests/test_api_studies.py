@@ -74,7 +74,11 @@ import foilmap
 
 study = foilmap.load_study("s.toml")
 results = foilmap.run_study(study, "out", workers=2)
-print(json.dumps({{r.id: r.fun for r in results.runs}}))
+best = results.best()
+point = foilmap.evaluate(best.section, cl=0.5, sigma=1.5, mach=0.3)
+polar = foilmap.sweep(best.section, alpha=[0.0, 2.0, 4.0], sigma=1.5)
+print(json.dumps({{"funs": {{r.id: r.fun for r in results.runs}}, "evaluate": point.record,
+                  "sweep": polar.record}}))
 """
 
 
@@ -91,9 +95,21 @@ def test_a_script_runs_its_study_with_or_without_the_main_guard(tmp_path, guard)
                        text=True, timeout=600)
     assert r.returncode == 0, r.stderr
     assert r.stderr == ""  # no page of multiprocessing text, no warning
-    funs = json.loads(r.stdout.strip().splitlines()[-1])
+    got = json.loads(r.stdout.strip().splitlines()[-1])
+    funs = got["funs"]
     st = json.loads(cli("status", tmp_path / "out", "--json").stdout)
     assert {x["run"]: x["state"] for x in st["runs"]} == {"p.s1": "complete",
                                                          "p.s2": "complete"}
     for x in st["runs"]:
         assert funs[x["run"]] == pytest.approx(x["best"], rel=1e-9)
+    # the script's figures of the best design are the commands' figures of its section file
+    from test_api_sections import same
+
+    assert cli("best", tmp_path / "out", "-o", tmp_path / "best.toml").returncode == 0
+    for key, args in (("evaluate", ("evaluate", "--cl", "0.5", "--sigma", "1.5", "--mach", "0.3")),
+                      ("sweep", ("sweep", "--alpha", "0:4:2", "--sigma", "1.5"))):
+        r = cli(args[0], tmp_path / "best.toml", *args[1:], "--json")
+        assert r.returncode == 0, r.stderr
+        shown = json.loads(r.stdout)
+        shown["name"] = got[key]["name"]  # a bare SectionSet has no name
+        same(got[key], shown)
