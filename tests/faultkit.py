@@ -9,7 +9,6 @@ import sys
 import time
 from pathlib import Path
 
-from foilmap.store.runlog import read_run
 
 
 def start(args: list, env: dict | None = None) -> subprocess.Popen:
@@ -59,9 +58,15 @@ def wait_gone(pids, timeout: float) -> float:
 
 
 def generations(log: Path) -> int:
+    """Generations a run's log holds, read without HDF5's file lock: a reader holding the lock
+    when a resume reopens the log makes the writer's open fail (BlockingIOError, errno 11), so
+    a test that polls must not take it (``foilmap status`` and ``read_run`` do take it)."""
+    import h5py
+
     try:
-        return read_run(log).generations if log.exists() else 0
-    except Exception:  # noqa: BLE001 - being written, or damaged on purpose
+        with h5py.File(log, "r", libver="latest", swmr=True, locking=False) as f:
+            return int(f["gen/evaluations"].shape[0])
+    except Exception:  # noqa: BLE001 - missing, being written, or damaged on purpose
         return 0
 
 

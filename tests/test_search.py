@@ -358,29 +358,54 @@ max_evaluations = 120
     assert log.best() is not None
 
 
-# about 300 generations a run: the tenth interrupt comes after 73
-INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 3000").replace(
+# about 600 generations a run: ten interrupts, each after a commit of the driver it stops, leave
+# p.s3 unfinished on a loaded machine too (a driver commits once a second)
+INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 6000").replace(
     "seeds = [3, 4]", "seeds = [3, 4, 5]")
+
+
+def wait_for_own_generations(log: Path, n: int, proc, timeout=120.0) -> None:
+    """Wait until the log holds ``n`` generations, polled without HDF5's file lock (a poll that
+    held it while a resume reopens the log would make that run fail: faultkit.generations)."""
+    from faultkit import generations
+
+    t0 = time.time()
+    while time.time() - t0 < timeout:
+        if proc.poll() is not None:
+            _, err = proc.communicate()
+            raise AssertionError(f"the driver ended (exit {proc.returncode}) before it could be "
+                                 f"interrupted: {err}")
+        if generations(log) >= n:
+            return
+        time.sleep(0.05)
+    raise AssertionError("no progress")
 
 
 @pytest.mark.slow
 def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
     # Ctrl-C (SIGINT to the process group) and SIGTERM, alternately, ten times: every time the
     # driver exits 130 or 143 within seconds with one line, leaves no process behind and marks
-    # the unfinished runs interrupted; resume then finishes them bit-identically
+    # the unfinished runs interrupted.  The interrupts come one after another on one folder
+    # (the first to `run` after 10 generations of p.s3, the next nine to the `resume` that
+    # continues it, each once that driver has committed generations of its own); the last
+    # resume finishes the study bit-identically, with no run restarted from its seed (each
+    # interrupt committed consistently).  One study's work in all, not ten.
     study_file = tmp_path / "s.toml"
     study_file.write_text(INTERRUPTED)
     ref = tmp_path / "ref"
     r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out",
                         str(ref), "--workers", "2"], capture_output=True, text=True, timeout=600)
     assert r.returncode == 0, r.stderr
+    out = tmp_path / "cut"
+    log = out / "runs" / "p.s3.h5"
     for k in range(10):
         sig = signal.SIGINT if k % 2 == 0 else signal.SIGTERM
-        out = tmp_path / f"cut{k}"
-        proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(study_file),
-                                 "--out", str(out), "--workers", "2"], stdout=subprocess.DEVNULL,
-                                stderr=subprocess.PIPE, text=True, start_new_session=True)
-        wait_for_generations(out / "runs" / "p.s3.h5", 10 + 7 * k, proc)
+        args = ["run", str(study_file), "--out", str(out)] if k == 0 else ["resume", str(out)]
+        base = read_run(log).generations if k else 9
+        proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", *args, "--workers", "2"],
+                                stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                                start_new_session=True)
+        wait_for_own_generations(log, base + 1, proc)
         t0 = time.time()
         os.killpg(proc.pid, sig)
         _, err = proc.communicate(timeout=60)
@@ -388,6 +413,7 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
         assert proc.returncode == (130 if sig == signal.SIGINT else 143), err
         lines = [line for line in err.splitlines() if line.startswith("foilmap:")]
         assert len(lines) == 1 and "resume" in lines[0] and "Traceback" not in err, err
+        assert "restarts from its seed" not in err, err
         # no process of the group is left behind for long: the workers are gone when the
         # driver exits (tests/test_run_local.py checks their run locks are free then), and
         # multiprocessing's resource tracker leaves once it has read the driver's end
@@ -404,11 +430,16 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
         states = {row["run"]: row["state"] for row in index["runs"]}
         assert "interrupted" in states.values(), states
         assert set(states.values()) <= {"interrupted", "complete", "pending"}, states
-        r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out),
-                            "--workers", "2"], capture_output=True, text=True, timeout=600)
-        assert r.returncode == 0, r.stderr
-        for run_id in ("p.s3", "p.s4", "p.s5"):
-            logs_equal(ref / "runs" / f"{run_id}.h5", out / "runs" / f"{run_id}.h5")
+        cut = read_run(log)
+        assert cut.state_name != "complete" and cut.generations > base
+    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out), "--workers", "2"],
+                       capture_output=True, text=True, timeout=600)
+    assert r.returncode == 0, r.stderr
+    assert "restarts from its seed" not in r.stderr, r.stderr
+    for run_id in ("p.s3", "p.s4", "p.s5"):
+        logs_equal(ref / "runs" / f"{run_id}.h5", out / "runs" / f"{run_id}.h5")
+        assert read_run(out / "runs" / f"{run_id}.h5").state_name == "complete"
+    assert read_run(log).resumes == 10  # p.s3 was cut by every interrupt, resumed each time
 
 
 def test_a_study_with_no_feasible_design_says_so(tmp_path):
