@@ -55,7 +55,7 @@ class StudyResults:
 
     def _result(self, run: RunSpec, entry: dict) -> RunResult:
         indexed = entry.get("state", RunState.PENDING.value)
-        state = next((s for s in RunState if s.value == indexed), RunState.PENDING)
+        state = RunState.parse(indexed, RunState.PENDING)
         best, gens, evals, elapsed, message = None, 0, 0, None, entry.get("error", "")
         log = self._folder.log(run.run_id)
         if log is None and self._folder.log_path(run.run_id).exists():
