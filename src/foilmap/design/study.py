@@ -165,7 +165,8 @@ SCHEMA["engine"] = {
     "kind": Key("choice", "local", "where runs go: local (a process pool on this machine) or "
                 "dask (a Dask cluster)", choices=("local", "dask")),
     "scheduler": Key("str", "", "Dask scheduler address (empty: a LocalCluster on this machine)"),
-    "workers": Key("int", 0, "worker processes (0: the number of cores)", 0, 4096),
+    "workers": Key("int", 0, "worker processes (0: the number of cores; 1: in the calling "
+                   "process, no pool)", 0, 4096),
 }
 SCHEMA["fronts"] = {
     "reference_point": Key("floats", None, "hypervolume reference point, one value per objective "
