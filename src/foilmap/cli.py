@@ -248,7 +248,8 @@ def _options_evaluate(p):
     p.add_argument("--re", type=_finite("Reynolds number", 0.0, 1e10, open_lo=True),
                    metavar="RE", help="chord Reynolds number: adds Stratford's turbulent criterion")
     p.add_argument("--proxy-end", type=_finite("proxy end station", 0.0, 1.0, open_lo=True),
-                   default=0.9, metavar="X", help="chord station where the recovery proxies stop")
+                   metavar="X", help="chord station where the recovery proxies stop (default: "
+                   "the library's, 0.9)")
     _add_conditions(p)
     _json_option(p)
     p.add_argument("--table", metavar="FILE.csv", help="also write x, y, surface, cp, q per point")
@@ -263,7 +264,8 @@ def cmd_evaluate(args) -> int:
     from foilmap.store.sectionfile import write_text_atomic
 
     res = evaluate(_section_of(args), alpha=args.alpha, cl=args.cl, points=args.points,
-                   reynolds=args.re, proxy_end=args.proxy_end, mach=args.mach,
+                   reynolds=args.re, mach=args.mach,
+                   **({} if args.proxy_end is None else {"proxy_end": args.proxy_end}),
                    sigma=_sigma(args), compressibility=args.compressibility)
     if args.json:
         _print_json(res.record, indent=2)

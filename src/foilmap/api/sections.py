@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from foilmap.errors import InputError
+from foilmap.section._kconst import DEFAULT_PROXY_END
 from foilmap.section.conformal import SectionSet
 from foilmap.store.sectionfile import SectionRecord, format_section, load_section
 
@@ -221,7 +222,8 @@ class Evaluated(_Record):
 
 
 def evaluate(section, *, alpha: float | None = None, cl: float | None = None,
-             points: int = 256, reynolds: float | None = None, proxy_end: float = 0.9,
+             points: int = 256, reynolds: float | None = None,
+             proxy_end: float = DEFAULT_PROXY_END,
              mach: float | None = None, sigma: float | None = None,
              compressibility: str = "karman-tsien") -> Evaluated:
     """Figures of one section at an angle of attack (``alpha``, degrees, to its chord line) or a

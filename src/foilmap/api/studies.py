@@ -100,10 +100,8 @@ class StudyResults:
         if is_multi_objective(self.study):
             raise InputError(f"study {self.study.name!r} searches Pareto fronts, so it has no "
                              "single best design: use .front() and choose a design from it")
-        found = [r for r in self.runs if r.fun is not None]
-        if not found:
-            raise InputError(f"no run of study {self.study.name!r} has a feasible design yet")
-        return min(found, key=lambda r: r.fun)
+        # the folder's own rule (a family study's best is its family run's, not a station's)
+        return self.run(self._folder.best_design().run_id)
 
     def front(self) -> list[FrontDesign]:
         """The study's merged Pareto front of feasible designs, sorted by the first objective

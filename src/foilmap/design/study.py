@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 
 from foilmap.errors import InputError
+from foilmap.section._kconst import DEFAULT_PROXY_END
 
 __all__ = [
     "SCHEMA",
@@ -158,7 +159,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "popsize": Key("int", 0, "population size (0: CMA-ES default 4 + 3 ln D)", 0, 100000),
         "restarts": Key("int", 2, "IPOP restarts, each doubling the population", 0, 20),
         "points": Key("int", 256, "circle-plane samples per evaluation", 64, 8192),
-        "proxy_end": Key("float", 0.9, "chord station where the recovery proxies stop", 0.5, 1.0),
+        "proxy_end": Key("float", DEFAULT_PROXY_END, "chord station where the recovery proxies "
+                         "stop", 0.5, 1.0),
     },
 }
 SCHEMA["engine"] = {
