@@ -145,14 +145,13 @@ def test_commits_come_every_commit_interval(tmp_path, ref, steps, monkeypatch):
         read_run(folder.log_path(run.run_id)).gen["evaluations"])
 
 
-def test_a_run_another_process_holds_is_refused_and_left_alone(tmp_path, monkeypatch, steps):
-    monkeypatch.setattr(single, "RUN_LOCK_WAIT", 0.2)
+def test_a_run_another_process_holds_is_refused_and_left_alone(tmp_path, steps):
     st, run, folder = prepared(tmp_path)
     folder.log_path(run.run_id).parent.mkdir(parents=True, exist_ok=True)
     holder = Lock(folder.log_path(run.run_id).with_suffix(".lock"), "another writer").acquire()
     try:
         with pytest.raises(Busy, match="another writer"):
-            execute_run(st, run, folder.path)
+            execute_run(st, run, folder.path, lock_wait=0.2)  # (RUN_LOCK_WAIT, 30 s, by default)
     finally:
         holder.release()
     assert steps == [] and not folder.log_path(run.run_id).exists()
