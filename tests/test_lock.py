@@ -4,6 +4,7 @@ included; a run another process holds is refused after a short wait."""
 
 from __future__ import annotations
 
+import functools
 import json
 import os
 import signal
@@ -94,7 +95,10 @@ def test_a_run_held_elsewhere_is_refused_after_a_short_wait(tmp_path, monkeypatc
     from foilmap.store.folder import StudyFolder
     from foilmap.store.studyfile import parse_study
 
-    monkeypatch.setattr(single, "RUN_LOCK_WAIT", 0.3)
+    # the worker's runs wait RUN_LOCK_WAIT (30 s), execute_run's default bound when it was
+    # defined: a shorter wait for this test, as a partial of execute_run
+    run_for_real = single.execute_run
+    monkeypatch.setattr(single, "execute_run", functools.partial(run_for_real, lock_wait=0.3))
     st = parse_study(small_study("held", [1], 60))
     folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
     run_lock = Lock(folder.log_path("p.s1").with_suffix(".lock"), "run p.s1").acquire()
@@ -105,7 +109,7 @@ def test_a_run_held_elsewhere_is_refused_after_a_short_wait(tmp_path, monkeypatc
     finally:
         run_lock.release()
     # a holder that lets go within the wait (an orphan committing) is waited for
-    monkeypatch.setattr(single, "RUN_LOCK_WAIT", 30.0)
+    monkeypatch.setattr(single, "execute_run", functools.partial(run_for_real, lock_wait=30.0))
     run_lock = Lock(folder.log_path("p.s1").with_suffix(".lock"), "run p.s1").acquire()
     threading.Timer(0.5, run_lock.release).start()
     s = single.worker(st, "p.s1", str(folder.path))
