@@ -131,3 +131,48 @@ def test_the_digest_of_the_rows_written_is_the_digest_of_the_rows_read(tmp_path)
     cut = read_run(path, upto=3)
     assert cut.generations == 3 and cut.evaluations == int(log.gen["evaluations"][2])
     assert generation_digest(cut.evals, cut.gen, cut.front_index, 3) == digests[3]
+
+
+def test_a_reopen_waits_for_a_reader_holding_the_log(tmp_path, monkeypatch):
+    # a reader (foilmap status) opening the log just after a resume has put the rewritten log
+    # in place and before it opens it for writing: HDF5 refuses the writer (errno 11) while
+    # the reader holds the lock; the writer waits it out instead of failing the run.  The
+    # reader is started inside that window, several times, for several lengths of hold
+    import subprocess
+    import sys
+    import time
+
+    from conftest import small_study
+
+    from foilmap.run.single import execute_run
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.runlog import RunLogWriter, read_run
+    from foilmap.store.studyfile import parse_study
+
+    st = parse_study(small_study("rd", [1], 60))
+    folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
+    execute_run(st, st.runs()[0], folder.path)
+    path = folder.log_path("p.s1")
+    hold = ("import h5py, sys, time\n"
+            "f = h5py.File(sys.argv[1], 'r')\nprint('held', flush=True)\n"
+            "time.sleep(float(sys.argv[2]))\nf.close()\n")
+    replace = os.replace
+    readers = []
+
+    def replace_then_read(src, dst):
+        replace(src, dst)
+        r = subprocess.Popen([sys.executable, "-c", hold, str(dst), str(held)],
+                             stdout=subprocess.PIPE, text=True)
+        assert r.stdout.readline().strip() == "held"
+        readers.append((r, time.monotonic()))
+
+    monkeypatch.setattr(runlog.os, "replace", replace_then_read)
+    for held in (0.3, 0.8, 1.5):
+        log = read_run(path)
+        w = RunLogWriter.reopen(path, log.generations, old=log)
+        opened = time.monotonic()
+        w.close()
+        reader, since = readers[-1]
+        reader.wait(timeout=30)
+        assert opened - since >= 0.8 * held  # it met the lock and waited for the reader
+        assert read_run(path).generations == log.generations

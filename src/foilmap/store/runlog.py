@@ -50,6 +50,9 @@ __all__ = [
 
 SCHEMA_VERSION = "1.1"
 _LIBVER = ("v110", "v110")
+#: seconds a writer waits for readers to let go of a log's file lock (a ``foilmap status``
+#: reading it just as a resume reopens it) before the open fails
+LOCK_WAIT = 10.0
 UNITS = {
     "lengths": "chords", "angles": "degrees in attributes and section files, radians nowhere",
     "cp": "1 - (V/Vinf)^2", "cm": "about the quarter chord, nose-up positive",
@@ -175,7 +178,7 @@ class RunLogWriter:
             f.flush()
             f.close()
             os.replace(tmp, path)
-            f = h5py.File(path, "r+", libver=_LIBVER)
+            f = _open_for_writing(path)
             f.swmr_mode = True
         except BaseException:
             try:
@@ -357,6 +360,25 @@ def _check_length(path: Path) -> None:
             return
         time.sleep(0.05 * (attempt + 1))
     raise OSError(f"log {path.name} is truncated ({size} of {end} bytes)")
+
+
+def _open_for_writing(path: Path):
+    """Open a closed log for writing, waiting up to :data:`LOCK_WAIT` seconds while a reader
+    holds its file lock (HDF5 refuses the open with errno 11 meanwhile; readers hold it for
+    the moment of a read)."""
+    import errno
+
+    import h5py
+
+    deadline = time.monotonic() + LOCK_WAIT
+    while True:
+        try:
+            return h5py.File(path, "r+", libver=_LIBVER)
+        except OSError as exc:
+            locked = exc.errno in (errno.EAGAIN, errno.EACCES) or "lock" in str(exc).lower()
+            if not locked or time.monotonic() > deadline:
+                raise
+            time.sleep(0.02)
 
 
 def _read_run(path: Path, upto: int | None) -> RunLog:
