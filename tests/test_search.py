@@ -259,13 +259,19 @@ def test_killed_run_resumes_to_identical_log(tmp_path, sig):
     proc = start_run(study_file, out)
     log = out / "runs" / "p.s3.h5"
     seen = wait_for_generations(log, 40, proc)
-    # a live reader sees the run while it is written
+    # the run is frozen while a live reader looks at it, so that the signal below always lands
+    # mid-run (on a loaded machine it could otherwise finish while status starts)
+    os.killpg(proc.pid, signal.SIGSTOP)
     st = subprocess.run([sys.executable, "-m", "foilmap.cli", "status", str(out), "--json"],
                         capture_output=True, text=True, timeout=60)
     assert st.returncode == 0, st.stderr
     row = json.loads(st.stdout)["runs"][0]
     assert row["state"] in ("running", "unfinished") and row["generations"] >= seen
     os.killpg(proc.pid, sig)
+    try:
+        os.killpg(proc.pid, signal.SIGCONT)  # a stopped process takes SIGTERM on waking
+    except ProcessLookupError:  # (SIGKILL: the group is gone)
+        pass
     proc.wait(timeout=60)
     cut = read_run(log)
     assert cut.state_name != "complete" and 0 < cut.generations
