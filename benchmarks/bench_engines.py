@@ -17,15 +17,15 @@ import time
 from importlib.resources import files
 from pathlib import Path
 
-from foilmap.run.local import run_study
-from foilmap.store.studyfile import parse_study
+from foilmap.run.local import drive_study
+from foilmap.store.studyfile import load_study_text
 
 
 def bench_study(runs: int, evals: int):
     """The demo problem with ``runs`` seeds of ``evals`` evaluations each (invented data)."""
     text = files("foilmap").joinpath("data/demo.toml").read_text()
     text = text.replace("seeds = [1, 2, 3, 4]", f"seeds = {list(range(1, runs + 1))}")
-    return parse_study(text).with_budget(evals)
+    return load_study_text(text).with_budget(evals)
 
 
 def main() -> None:
@@ -40,7 +40,7 @@ def main() -> None:
         for workers in (1, 2):
             with tempfile.TemporaryDirectory() as tmp:
                 t0 = time.perf_counter()
-                run_study(st, Path(tmp), workers=workers, engine=engine)
+                drive_study(st, Path(tmp), workers=workers, engine=engine)
                 dt = time.perf_counter() - t0
             rows.append({"engine": engine, "workers": workers, "runs": args.runs,
                          "seconds": round(dt, 2), "runs_per_min": round(args.runs / dt * 60, 1)})

@@ -25,9 +25,9 @@ from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
 
-from foilmap.run.local import run_study  # noqa: E402
+from foilmap.run.local import drive_study  # noqa: E402
 from foilmap.store.runlog import read_run  # noqa: E402
-from foilmap.store.studyfile import parse_study  # noqa: E402
+from foilmap.store.studyfile import load_study_text  # noqa: E402
 
 
 def study_text(seeds) -> str:
@@ -36,9 +36,9 @@ def study_text(seeds) -> str:
 
 
 def run(seeds, budget, workers):
-    study = parse_study(study_text(seeds))
+    study = load_study_text(study_text(seeds))
     with tempfile.TemporaryDirectory() as tmp:
-        run_study(study, Path(tmp), workers=workers, budget=budget)
+        drive_study(study, Path(tmp), workers=workers, budget=budget)
         logs = [read_run(Path(tmp) / "runs" / f"cruise.s{s}.h5") for s in seeds]
         return [(log.gen["evaluations"].copy(), log.gen["best_f"].copy()) for log in logs]
 

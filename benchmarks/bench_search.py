@@ -30,7 +30,7 @@ from foilmap.design.search import is_finished, new_search, step  # noqa: E402
 from foilmap.run.single import execute_run
 from foilmap.store.folder import StudyFolder  # noqa: E402
 from foilmap.store.runlog import read_run  # noqa: E402
-from foilmap.store.studyfile import parse_study  # noqa: E402
+from foilmap.store.studyfile import load_study_text  # noqa: E402
 
 
 def measure(popsize: int, generations: int, repeats: int = 3) -> dict:
@@ -39,7 +39,7 @@ def measure(popsize: int, generations: int, repeats: int = 3) -> dict:
 
     text = files("foilmap").joinpath("data/demo.toml").read_text()
     text = text.replace("restarts = 1", f"restarts = 0\npopsize = {popsize}")
-    study = parse_study(text).with_budget(popsize * generations)
+    study = load_study_text(text).with_budget(popsize * generations)
     t_run = t_search = t_kernel = float("inf")
     for _ in range(repeats):
         with tempfile.TemporaryDirectory() as tmp:

@@ -16,9 +16,9 @@ import pytest
 from conftest import small_study
 from test_search import logs_equal
 
-from foilmap.run.local import run_study
+from foilmap.run.local import drive_study
 from foilmap.store.runlog import read_run
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 pytestmark = pytest.mark.slow
 
@@ -29,7 +29,7 @@ def own_key(tmp_path, monkeypatch):
     monkeypatch.setenv("FOILMAP_CONFIG_DIR", str(tmp_path / "config"))
 
 def study(n: int, evals: int):
-    return parse_study(small_study("cluster", range(1, n + 1), evals))
+    return load_study_text(small_study("cluster", range(1, n + 1), evals))
 
 
 def all_equal(a: Path, b: Path, st) -> None:
@@ -39,8 +39,8 @@ def all_equal(a: Path, b: Path, st) -> None:
 
 def test_forty_runs_on_a_local_cluster_match_the_local_engine(tmp_path):
     st = study(40, 120)
-    run_study(st, tmp_path / "local", workers=2)
-    summ = run_study(st, tmp_path / "dask", workers=2, engine="dask")
+    drive_study(st, tmp_path / "local", workers=2)
+    summ = drive_study(st, tmp_path / "dask", workers=2, engine="dask")
     assert len(summ) == 40 and all(s["state"] == "complete" for s in summ)
     all_equal(tmp_path / "local", tmp_path / "dask", st)
     index = json.loads((tmp_path / "dask" / "index.json").read_text())
@@ -51,7 +51,7 @@ def test_a_killed_worker_costs_nothing(tmp_path):
     from foilmap.run.cluster import DaskBackend
 
     st = study(6, 2500)
-    run_study(st, tmp_path / "ref", workers=2)
+    drive_study(st, tmp_path / "ref", workers=2)
     out = tmp_path / "dask"
     killed = {}
     original = DaskBackend.wait
@@ -79,7 +79,7 @@ def test_a_killed_worker_costs_nothing(tmp_path):
 
     DaskBackend.wait = wait_and_kill
     try:
-        summ = run_study(st, out, workers=2, engine="dask")
+        summ = drive_study(st, out, workers=2, engine="dask")
     finally:
         DaskBackend.wait = original
     assert killed, "no run was caught in flight"
@@ -90,7 +90,7 @@ def test_a_killed_worker_costs_nothing(tmp_path):
 
 def test_a_killed_driver_resumes(tmp_path):
     st = study(4, 3000)
-    run_study(st, tmp_path / "ref", workers=2)
+    drive_study(st, tmp_path / "ref", workers=2)
     sf = tmp_path / "s.toml"
     sf.write_text(st.text)
     out = tmp_path / "cut"
@@ -133,7 +133,7 @@ def test_a_killed_driver_resumes(tmp_path):
 def test_a_thousand_tiny_runs_on_the_local_engine(tmp_path):
     st = study(1000, 10)
     t0 = time.time()
-    summ = run_study(st, tmp_path / "load", workers=2)
+    summ = drive_study(st, tmp_path / "load", workers=2)
     took = time.time() - t0
     assert len(summ) == 1000 and all(s["state"] == "complete" for s in summ)
     index = json.loads((tmp_path / "load" / "index.json").read_text())
@@ -156,7 +156,7 @@ def test_a_run_that_keeps_failing_is_recorded_and_the_rest_finish(tmp_path):
     out = tmp_path / "f"
     (out / "runs" / "p.s2.h5").mkdir(parents=True)  # its log cannot be written: every attempt fails
     for engine in ("local", "dask"):
-        summ = run_study(st, out, workers=2, engine=engine)
+        summ = drive_study(st, out, workers=2, engine=engine)
         failed = [s for s in summ if s["state"] == "failed"]
         assert [s["run"] for s in failed] == ["p.s2"]
         assert failed[0]["attempts"] == 3 and "Error" in failed[0]["error"]
@@ -174,7 +174,7 @@ def test_a_killed_driver_alone_frees_its_runs_and_resumes_at_once(tmp_path):
     from foilmap.store.lock import Lock
 
     st = study(2, 3000)
-    run_study(st, tmp_path / "ref", workers=2)
+    drive_study(st, tmp_path / "ref", workers=2)
     sf = tmp_path / "s.toml"
     sf.write_text(st.text)
     out = tmp_path / "cut"

@@ -61,11 +61,11 @@ def test_the_floor_is_on_by_default_and_can_be_changed_or_switched_off():
 @pytest.fixture(scope="module")
 def on_the_floor(tmp_path_factory):
     """A short search with a floor of 0.03 c, which its best design reaches."""
-    from foilmap.run.local import run_study
+    from foilmap.run.local import drive_study
 
     out = tmp_path_factory.mktemp("endgame") / "first"
     study = _study("min_local_thickness = 0.03", budget=1500)
-    summaries = run_study(study, out, workers=1)
+    summaries = drive_study(study, out, workers=1)
     assert [s["state"] for s in summaries] == ["complete"]
     return out
 
@@ -102,20 +102,20 @@ def test_best_and_status_warn_when_the_best_design_sits_on_the_floor(on_the_floo
 
 def test_no_warning_far_from_the_floor(tmp_path):
     """A floor the design never nears gives no warning (the same short search, floor 0.0005)."""
-    from foilmap.run.local import run_study
+    from foilmap.run.local import drive_study
 
     out = tmp_path / "low"
-    run_study(_study("min_local_thickness = 0.0005", budget=120), out, workers=1)
+    drive_study(_study("min_local_thickness = 0.0005", budget=120), out, workers=1)
     assert floor_warnings(out) == []
-    run_study(_study("min_local_thickness = 0", budget=120), tmp_path / "off", workers=1)
+    drive_study(_study("min_local_thickness = 0", budget=120), tmp_path / "off", workers=1)
     assert floor_warnings(tmp_path / "off") == []
 
 
 def test_the_same_seed_gives_the_same_bits(on_the_floor, tmp_path):
-    from foilmap.run.local import run_study
+    from foilmap.run.local import drive_study
 
     out = tmp_path / "again"
-    run_study(_study("min_local_thickness = 0.03", budget=1500), out, workers=1)
+    drive_study(_study("min_local_thickness = 0.03", budget=1500), out, workers=1)
     a = read_run(next((on_the_floor / "runs").glob("*.h5")))
     b = read_run(next((out / "runs").glob("*.h5")))
     np.testing.assert_array_equal(np.asarray(a.evals["x"]), np.asarray(b.evals["x"]))

@@ -32,7 +32,7 @@ from foilmap.run.single import execute_run, recover
 from foilmap.store.folder import StudyFolder
 from foilmap.store.lock import Lock
 from foilmap.store.runlog import read_run
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 RUNS = ("p.s1", "p.s2")
 
@@ -197,7 +197,7 @@ def test_a_killed_driver_its_orphans_and_an_immediate_resume(tmp_path, quick_ref
 
 
 def in_process_study(tmp_path, evals=400):
-    st = parse_study(study_text(evals))
+    st = load_study_text(study_text(evals))
     ref, _ = StudyFolder.prepare(st, tmp_path / "ref", None)
     for r in st.runs():
         execute_run(st, r, ref.path)

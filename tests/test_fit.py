@@ -160,7 +160,7 @@ def test_fit_command_and_a_study_started_from_it(tmp_path):
     assert png.read_bytes()[:4] == b"\x89PNG"
     # a study may start from the section file or from the coordinates themselves
     from foilmap.design.problem import Problem
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     for start in ("n2412.toml", "n2412.dat"):
         text = f"""
@@ -177,7 +177,7 @@ cl = 0.5
 [objectives]
 peak_suction = 1.0
 """
-        study = parse_study(text, "study.toml", base_dir=str(tmp_path))
+        study = load_study_text(text, "study.toml", base_dir=str(tmp_path))
         run = study.runs()[0]
         problem = Problem.from_run(study, run)
         x0 = problem.param.x0()[None, :]

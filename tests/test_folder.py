@@ -15,7 +15,7 @@ from foilmap.design.results import RunState
 from foilmap.run.single import execute_run
 from foilmap.store.folder import StudyFolder
 from foilmap.store.runlog import read_run
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 TEXT = small_study("folder", [1, 2], 80)
 
@@ -24,25 +24,25 @@ TEXT = small_study("folder", [1, 2], 80)
 def ran(tmp_path_factory):
     """A folder whose first run (p.s1) is complete and whose second (p.s2) is pending."""
     out = tmp_path_factory.mktemp("folder") / "out"
-    folder, study = StudyFolder.prepare(parse_study(TEXT), out, None)
+    folder, study = StudyFolder.prepare(load_study_text(TEXT), out, None)
     execute_run(study, study.runs()[0], out)
     return out
 
 
 def test_prepare_keeps_the_study_and_its_budget(tmp_path):
     out = tmp_path / "o"
-    folder, study = StudyFolder.prepare(parse_study(TEXT), out, 60)
+    folder, study = StudyFolder.prepare(load_study_text(TEXT), out, 60)
     assert (out / "study.toml").read_text() == TEXT and (out / "runs").is_dir()
     assert folder.exists() and study.runs()[0].search["max_evaluations"] == 60
     # opened again, with no budget given: the budget recorded first holds
     again = StudyFolder(out).study
     assert again.runs()[0].search["max_evaluations"] == 60
-    _, study2 = StudyFolder.prepare(parse_study(TEXT), out, None)
+    _, study2 = StudyFolder.prepare(load_study_text(TEXT), out, None)
     assert study2.runs()[0].search["max_evaluations"] == 60
     with pytest.raises(InputError, match="was started with a budget of 60"):
-        StudyFolder.prepare(parse_study(TEXT), out, 70)
+        StudyFolder.prepare(load_study_text(TEXT), out, 70)
     with pytest.raises(InputError, match="holds a different study"):
-        StudyFolder.prepare(parse_study(small_study("other", [1], 80)), out, None)
+        StudyFolder.prepare(load_study_text(small_study("other", [1], 80)), out, None)
 
 
 def test_not_a_study_folder(tmp_path):
@@ -52,7 +52,7 @@ def test_not_a_study_folder(tmp_path):
 
 
 def test_index_lists_every_run_pending_unless_told(tmp_path):
-    folder, _ = StudyFolder.prepare(parse_study(TEXT), tmp_path / "o", None)
+    folder, _ = StudyFolder.prepare(load_study_text(TEXT), tmp_path / "o", None)
     assert folder.read_index() == {}
     folder.write_index({"p.s2": {"state": "interrupted"}})
     index = folder.read_index()

@@ -28,7 +28,7 @@ from foilmap.design.search import is_finished, new_search, step
 from foilmap.run.single import execute_run
 from foilmap.store.folder import StudyFolder
 from foilmap.store.runlog import read_run
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 
 def test_hypervolume_2d_by_hand():
@@ -136,7 +136,7 @@ MO_STUDY = small_study(
 
 
 def run_folder(tmp_path, name, text=MO_STUDY, budget=None):
-    study = parse_study(text)
+    study = load_study_text(text)
     out = tmp_path / name
     _, study = StudyFolder.prepare(study, out, budget)
     for r in study.runs():
@@ -296,7 +296,7 @@ def test_fronts_refusals(tmp_path, case, message):
 def test_shipped_front_study_is_a_two_variant_comparison():
     root = Path(__file__).resolve().parents[1]
     path = next((root / "studies").glob("*front*.toml"))
-    study = parse_study(path.read_text(), str(path))
+    study = load_study_text(path.read_text(), str(path))
     assert study.search["method"] == "comocma" and len(study.objectives) == 2
     assert {v for v, _ in study.variants} == {"n4", "n8"}
 
@@ -346,8 +346,8 @@ def test_a_front_study_points_best_to_pick_and_plots_its_hypervolume(tmp_path):
 def test_a_study_is_multi_objective_by_its_search_method():
     from foilmap.design.fronts import is_multi_objective
     from foilmap.store import folder
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     assert folder.is_multi_objective is is_multi_objective  # the store re-exports it
-    assert is_multi_objective(parse_study(MO_STUDY))
-    assert not is_multi_objective(parse_study(small_study("single", [1], 100)))
+    assert is_multi_objective(load_study_text(MO_STUDY))
+    assert not is_multi_objective(load_study_text(small_study("single", [1], 100)))

@@ -200,7 +200,7 @@ def test_target_cp_objective(tmp_path):
     from conftest import small_study
 
     from foilmap.design.problem import Problem
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     sec = load_section(EXAMPLE).to_set()
     an = analyse(sec, cl=0.5, proxies=())
@@ -211,7 +211,7 @@ def test_target_cp_objective(tmp_path):
     text = small_study("inv", [1], 200, objectives="target_cp_rms = 1.0",
                        constraints="thickness = [0.10, 1.0]").replace(
         "cl = 0.5", 'cl = 0.5\ntarget_cp = "target.csv"', 1)
-    st = parse_study(text, str(tmp_path / "s.toml"), str(tmp_path))
+    st = load_study_text(text, str(tmp_path / "s.toml"), str(tmp_path))
     prob = Problem.from_run(st, st.runs()[0])
     y = np.zeros((2, prob.param.dimension))
     y[1, 0] = 1.0
@@ -232,4 +232,4 @@ def test_target_cp_objective(tmp_path):
     from foilmap.errors import InputError
 
     with pytest.raises(InputError, match="target_cp_rms needs 'target_cp'"):
-        parse_study(small_study("inv", [1], 200, objectives="target_cp_rms = 1.0"))
+        load_study_text(small_study("inv", [1], 200, objectives="target_cp_rms = 1.0"))

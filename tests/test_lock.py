@@ -93,13 +93,13 @@ def test_a_second_run_on_a_busy_folder_stops_at_once_in_one_line(tmp_path):
 def test_a_run_held_elsewhere_is_refused_after_a_short_wait(tmp_path, monkeypatch):
     from foilmap.run import single
     from foilmap.store.folder import StudyFolder
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     # the worker's runs wait RUN_LOCK_WAIT (30 s), execute_run's default bound when it was
     # defined: a shorter wait for this test, as a partial of execute_run
     run_for_real = single.execute_run
     monkeypatch.setattr(single, "execute_run", functools.partial(run_for_real, lock_wait=0.3))
-    st = parse_study(small_study("held", [1], 60))
+    st = load_study_text(small_study("held", [1], 60))
     folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
     run_lock = Lock(folder.log_path("p.s1").with_suffix(".lock"), "run p.s1").acquire()
     try:

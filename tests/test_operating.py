@@ -288,18 +288,18 @@ def test_study_point_conditions(tmp_path):
     from conftest import small_study
 
     from foilmap.errors import InputError
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     base = small_study("c", [1], 200)
-    st = parse_study(base.replace("cl = 0.5", "cl = 0.5\nspeed = 10.0\ndepth = 1.0\n"
+    st = load_study_text(base.replace("cl = 0.5", "cl = 0.5\nspeed = 10.0\ndepth = 1.0\n"
                                   "water_temperature = 20.0", 1))
     assert st.points[0].sigma == pytest.approx(2.17940, abs=2e-5)
     with pytest.raises(InputError, match="cavitation_margin needs a cavitation number"):
-        parse_study(small_study("c", [1], 200, constraints="cavitation_margin = 0.1"))
+        load_study_text(small_study("c", [1], 200, constraints="cavitation_margin = 0.1"))
     with pytest.raises(InputError, match="missing point\\[1\\].depth"):
-        parse_study(base.replace("cl = 0.5", "cl = 0.5\nspeed = 10.0", 1))
+        load_study_text(base.replace("cl = 0.5", "cl = 0.5\nspeed = 10.0", 1))
     with pytest.raises(InputError, match="station_thickness .* constraints.thickness"):
-        parse_study(small_study("c", [1], 200, constraints="thickness = [0.1, 0.12]\n"
+        load_study_text(small_study("c", [1], 200, constraints="thickness = [0.1, 0.12]\n"
                                 "station_thickness = [[0.3, 0.15]]"))
 
 

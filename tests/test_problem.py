@@ -14,7 +14,7 @@ from foilmap.section.evaluation import analyse
 from foilmap.section.geometry import exact_points_at_x
 from foilmap.section.operating import compressible_cp, critical_mach
 from foilmap.section.status import Status
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 CONSTRAINTS = """thickness = [0.10, 0.16]
 min_le_radius = 0.006
@@ -26,7 +26,7 @@ def problem(objectives="peak_suction = 1.0\nseverity = 0.1", constraints=CONSTRA
             point="cl = 0.5\ncl_range = [0.4, 0.6]", extra=""):
     text = small_study("prob", [1], 200, objectives=objectives, constraints=constraints,
                        extra=extra).replace("cl = 0.5", point, 1)
-    st = parse_study(text)
+    st = load_study_text(text)
     return Problem.from_run(st, st.runs()[0])
 
 
@@ -107,7 +107,7 @@ def test_problem_with_mach_and_cavitation():
                        "min_critical_mach = 0.5").replace(
         "cl = 0.5", "cl = 0.5\nmach = 0.4\nsigma = 1.5", 1)
     text = text.replace("peak_suction = 1.0", "peak_suction = 1.0\ncritical_mach_deficit = 1.0")
-    st = parse_study(text)
+    st = load_study_text(text)
     run = st.runs()[0]
     prob = Problem.from_run(st, run)
     y = np.zeros((1, prob.param.dimension))

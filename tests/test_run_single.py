@@ -27,14 +27,14 @@ from foilmap.run.single import (
 from foilmap.store.folder import StudyFolder
 from foilmap.store.lock import Busy, Lock
 from foilmap.store.runlog import read_checkpoint_info, read_run, save_checkpoint
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 #: about a dozen generations of ten evaluations: enough to stop in the middle, quick to run
 EVALS = 120
 
 
 def prepared(tmp_path, name: str = "out", text: str | None = None):
-    st = parse_study(text or small_study("single", [1, 2], EVALS))
+    st = load_study_text(text or small_study("single", [1, 2], EVALS))
     folder, st = StudyFolder.prepare(st, tmp_path / name, None)
     return st, st.runs()[0], folder
 
@@ -164,7 +164,7 @@ def test_the_log_names_the_search_variables(tmp_path):
     assert names == ["re_A1", "im_A1", "re_A2", "im_A2", "re_A3", "im_A3", "re_A4", "im_A4",
                      "te_angle_unit"]  # the trailing-edge angle varies: [6, 14] by default
     assert len(names) == problem.param.dimension
-    sym = parse_study(small_study("sym", [1], EVALS).replace(
+    sym = load_study_text(small_study("sym", [1], EVALS).replace(
         "coefficients = 4", "coefficients = 3\nsymmetric = true\nte_angle_deg = 10.0"))
     p = Problem.from_run(sym, sym.runs()[0])
     assert _variable_names(p) == ["re_A1", "re_A2", "re_A3"] and p.param.dimension == 3

@@ -113,11 +113,11 @@ def test_the_digest_of_the_rows_written_is_the_digest_of_the_rows_read(tmp_path)
     from foilmap.run.single import execute_run
     from foilmap.store.folder import StudyFolder
     from foilmap.store.runlog import RunLogWriter, read_run
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     from conftest import small_study
 
-    st = parse_study(small_study("dg", [1], 60))
+    st = load_study_text(small_study("dg", [1], 60))
     folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
     execute_run(st, st.runs()[0], folder.path)
     path = folder.log_path("p.s1")
@@ -147,9 +147,9 @@ def test_a_reopen_waits_for_a_reader_holding_the_log(tmp_path, monkeypatch):
     from foilmap.run.single import execute_run
     from foilmap.store.folder import StudyFolder
     from foilmap.store.runlog import RunLogWriter, read_run
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
-    st = parse_study(small_study("rd", [1], 60))
+    st = load_study_text(small_study("rd", [1], 60))
     folder, st = StudyFolder.prepare(st, tmp_path / "o", None)
     execute_run(st, st.runs()[0], folder.path)
     path = folder.log_path("p.s1")

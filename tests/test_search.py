@@ -21,7 +21,7 @@ from foilmap.section.evaluation import evaluate
 from foilmap.run.single import execute_run
 from foilmap.store.folder import StudyFolder
 from foilmap.store.runlog import read_run
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -67,7 +67,7 @@ def logs_equal(a: Path, b: Path) -> None:
 
 
 def one_run(tmp_path, name, budget=None, text=STUDY):
-    study = parse_study(text)
+    study = load_study_text(text)
     out = tmp_path / name
     _, study = StudyFolder.prepare(study, out, budget)
     run = study.runs()[0]
@@ -109,7 +109,7 @@ def test_a_stopped_run_resumes_to_the_same_bits_in_process(tmp_path, monkeypatch
     # stepped -- and its log is bit for bit the uninterrupted run's
     ref = one_run(tmp_path, "ref")
     total = read_run(ref).generations
-    study = parse_study(STUDY)
+    study = load_study_text(STUDY)
     out = tmp_path / "cut"
     _, study = StudyFolder.prepare(study, out, None)
     run = study.runs()[0]
@@ -142,7 +142,7 @@ def test_a_log_ahead_of_its_checkpoint_resumes_from_the_checkpoint(tmp_path, mon
 
     ref = one_run(tmp_path, "ref")
     total = read_run(ref).generations
-    study = parse_study(STUDY)
+    study = load_study_text(STUDY)
     out = tmp_path / "cut"
     _, study = StudyFolder.prepare(study, out, None)
     run = study.runs()[0]
@@ -334,10 +334,10 @@ def test_bad_study_input_writes_nothing(tmp_path, args, message):
 @pytest.mark.slow
 def test_a_budget_set_on_the_study_reaches_the_workers(tmp_path):
     # regression: workers re-read the study text, which keeps its own budget
-    from foilmap.run.local import run_study
+    from foilmap.run.local import drive_study
 
-    st = parse_study(STUDY).with_budget(60)
-    summ = run_study(st, tmp_path / "b", workers=1)
+    st = load_study_text(STUDY).with_budget(60)
+    summ = drive_study(st, tmp_path / "b", workers=1)
     assert all(60 <= s["evaluations"] < 60 + 20 for s in summ)
 
 
@@ -469,7 +469,7 @@ def test_workers_get_the_validated_study_not_its_text(tmp_path):
     # worker parsed the text again and fitted the file again)
     from conftest import SECTION_TEXT, small_study
 
-    from foilmap.run.local import run_study
+    from foilmap.run.local import drive_study
 
     (tmp_path / "start.toml").write_text(SECTION_TEXT)
     text = small_study("fromfile", [1, 2], 150).replace(
@@ -479,5 +479,5 @@ def test_workers_get_the_validated_study_not_its_text(tmp_path):
 
     study = load_study(tmp_path / "s.toml")
     (tmp_path / "start.toml").unlink()
-    summaries = run_study(study, tmp_path / "out", workers=2)
+    summaries = drive_study(study, tmp_path / "out", workers=2)
     assert [s["state"] for s in summaries] == ["complete", "complete"]

@@ -10,8 +10,8 @@ import matplotlib
 from conftest import SECTION_TEXT, cli, small_study
 
 from foilmap import analyse, load_section
-from foilmap.run.local import run_study
-from foilmap.store.studyfile import parse_study
+from foilmap.run.local import drive_study
+from foilmap.store.studyfile import load_study_text
 
 
 def mode(path) -> int:
@@ -23,8 +23,8 @@ def test_a_study_run_from_python_leaves_the_process_as_it_was(tmp_path, monkeypa
     old_mask = os.umask(0o022)
     try:
         before = dict(os.environ)
-        study = parse_study(small_study("quiet", [1], 150))
-        run_study(study, tmp_path / "out", workers=1)
+        study = load_study_text(small_study("quiet", [1], 150))
+        drive_study(study, tmp_path / "out", workers=1)
         assert dict(os.environ) == before  # no BLAS thread settings left behind
         assert sorted(p.name for p in tmp_path.iterdir()) == ["out"]  # no outcmaes/ or others
         out = tmp_path / "out"
@@ -35,7 +35,7 @@ def test_a_study_run_from_python_leaves_the_process_as_it_was(tmp_path, monkeypa
         front = small_study("front", [1], 300, objectives="peak_suction = 1.0\nseverity = 1.0",
                             extra='[fronts]\nreference_point = [3.0, 3.0]\n').replace(
             "[search]", "[search]\nmethod = \"comocma\"\nkernels = 3")
-        run_study(parse_study(front), tmp_path / "front", workers=1)
+        drive_study(load_study_text(front), tmp_path / "front", workers=1)
         assert sorted(p.name for p in tmp_path.iterdir()) == ["front", "out"]
         assert dict(os.environ) == before
     finally:

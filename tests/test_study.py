@@ -9,7 +9,7 @@ import pytest
 
 from foilmap import InputError
 from foilmap.design.study import SCHEMA
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -56,7 +56,7 @@ name = "n8"
 shape = { coefficients = 8 }
 search = { max_evaluations = 500 }
 """
-    st = parse_study(text)
+    st = load_study_text(text)
     runs = st.runs()
     assert len(runs) == 2 * 2 * 2  # variants × points × seeds
     assert [r.run_id for r in runs[:3]] == ["a.n4.s1", "a.n4.s2", "b.n4.s1"]
@@ -72,7 +72,7 @@ search = { max_evaluations = 500 }
 
 
 def test_engine_and_fronts_tables_reach_the_study():
-    st = parse_study(BASE.replace("peak_suction = 1.0", "peak_suction = 1.0\nseverity = 1.0")
+    st = load_study_text(BASE.replace("peak_suction = 1.0", "peak_suction = 1.0\nseverity = 1.0")
                      + '[engine]\nkind = "dask"\nworkers = 3\n'
                      "[fronts]\nreference_point = [2.0, 3.0]\n")
     assert st.engine == {"kind": "dask", "scheduler": "", "workers": 3}
@@ -81,7 +81,7 @@ def test_engine_and_fronts_tables_reach_the_study():
 
 def test_a_symmetric_study_may_bound_camber_from_zero():
     # zero camber inside [0, 0.05] (a symmetric section has none): allowed
-    st = parse_study(BASE + "[shape]\nsymmetric = true\n[constraints]\ncamber = [0.0, 0.05]\n")
+    st = load_study_text(BASE + "[shape]\nsymmetric = true\n[constraints]\ncamber = [0.0, 0.05]\n")
     assert st.constraints["camber"] == [0.0, 0.05]
 
 
@@ -178,7 +178,7 @@ BAD = [
 @pytest.mark.parametrize("text,message", BAD)
 def test_bad_study_files(text, message):
     with pytest.raises(InputError) as err:
-        parse_study(text, "bad.toml")
+        load_study_text(text, "bad.toml")
     msg = str(err.value)
     assert message in msg
     assert "\n" not in msg and "bad.toml" in msg
@@ -200,7 +200,7 @@ def test_studies_are_shipped():
 
 @pytest.mark.parametrize("path", STUDIES, ids=lambda p: p.name)
 def test_shipped_studies_load(path):
-    st = parse_study(path.read_text(), str(path))
+    st = load_study_text(path.read_text(), str(path))
     assert st.runs()
 
 
@@ -277,7 +277,7 @@ def test_every_key_refuses_what_it_does_not_allow(table, key, value):
     # a check dropped from the validation lets a value through and fails here
     path = f"{table}[1].{key}" if table in ("point", "station") else f"{table}.{key}"
     with pytest.raises(InputError) as err:
-        parse_study(_study_with(table, key, value), "bad.toml")
+        load_study_text(_study_with(table, key, value), "bad.toml")
     msg = str(err.value)
     assert f"{path} = " in msg and "is not allowed" in msg, msg
     assert "\n" not in msg and "bad.toml" in msg
@@ -293,7 +293,7 @@ def test_every_key_accepts_its_limits():
                 v = int(v) if spec.kind == "int" else float(v)
                 text = _study_with(table, key, v)
                 try:
-                    parse_study(text, "ok.toml")
+                    load_study_text(text, "ok.toml")
                 except InputError as exc:  # another key's rule (a cross-check) may object
                     assert f"{table}.{key} = " not in str(exc) and \
                         f"{table}[1].{key} = " not in str(exc), str(exc)

@@ -10,7 +10,7 @@ from conftest import SECTION_TEXT, small_study
 
 from foilmap import InputError
 from foilmap.section.naca import naca4_coordinates
-from foilmap.store.studyfile import load_study, parse_study, read_start, read_target
+from foilmap.store.studyfile import load_study, load_study_text, read_start, read_target
 
 
 def test_a_study_file_is_read_with_its_text(tmp_path):
@@ -67,7 +67,7 @@ def test_a_missing_file_names_the_key_and_the_folder(tmp_path, key):
         text = text.replace("cl = 0.5", 'cl = 0.5\ntarget_cp = "nope.csv"').replace(
             "peak_suction = 1.0", "target_cp_rms = 1.0")
     with pytest.raises(InputError) as err:
-        parse_study(text, "s.toml", base_dir=str(tmp_path))
+        load_study_text(text, "s.toml", base_dir=str(tmp_path))
     msg = str(err.value)
     assert "nope." in msg and str(tmp_path) in msg and "\n" not in msg, msg
 
@@ -77,7 +77,7 @@ def test_a_bad_start_file_is_one_line_naming_it(tmp_path):
     text = small_study("b", [1], 100).replace("coefficients = 4",
                                               'coefficients = 4\nstart = "bad.toml"')
     with pytest.raises(InputError) as err:
-        parse_study(text, "s.toml", base_dir=str(tmp_path))
+        load_study_text(text, "s.toml", base_dir=str(tmp_path))
     assert "bad.toml" in str(err.value) and "\n" not in str(err.value)
 
 
@@ -86,12 +86,12 @@ def test_a_variants_own_start_file_is_read(tmp_path):
     text = small_study("v", [1], 100) + (
         '[[variant]]\nname = "fromfile"\nshape = { coefficients = 3, start = "start.toml" }\n'
         '[[variant]]\nname = "plain"\n')
-    st = parse_study(text, "s.toml", base_dir=str(tmp_path))
+    st = load_study_text(text, "s.toml", base_dir=str(tmp_path))
     shapes = {r.variant: r.shape for r in st.runs()}
     np.testing.assert_array_equal(shapes["fromfile"]["start_pairs"],
                                   [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]])
     assert shapes["fromfile"]["start_te_angle_deg"] == 10.0
     assert "start_pairs" not in shapes["plain"]
     with pytest.raises(InputError, match=r"variant\[1\]\.shape\.start = 'nope.toml'"):
-        parse_study(text.replace('"start.toml"', '"nope.toml"'), "s.toml",
+        load_study_text(text.replace('"start.toml"', '"nope.toml"'), "s.toml",
                     base_dir=str(tmp_path))

@@ -89,7 +89,7 @@ def test_screen_command_json(tmp_path):
 
 def test_profile_drag_as_a_study_objective():
     from foilmap.design.problem import Problem
-    from foilmap.store.studyfile import parse_study
+    from foilmap.store.studyfile import load_study_text
 
     text = """
 [study]
@@ -104,7 +104,7 @@ reynolds = 3.0e6
 [objectives]
 profile_drag = 1.0
 """
-    st = parse_study(text)
+    st = load_study_text(text)
     run = st.runs()[0]
     prob = Problem.from_run(st, run)
     x = prob.param.x0()[None, :].repeat(3, axis=0)
@@ -119,4 +119,4 @@ profile_drag = 1.0
     # the perturbed shapes
     assert np.all((0.003 < out.objectives[:, 0]) & (out.objectives[:, 0] < 0.02))
     with pytest.raises(Exception, match="objective profile_drag needs 'reynolds'"):
-        parse_study(text.replace("reynolds = 3.0e6\n", ""))
+        load_study_text(text.replace("reynolds = 3.0e6\n", ""))

@@ -427,14 +427,14 @@ def _run_folder(study, out: Path, workers, budget, engine=None, scheduler=None,
                 wait: bool = False, what: str = "foilmap run") -> int:
     from foilmap.report.progress import Progress
     from foilmap.report.study import format_run_summary
-    from foilmap.run.local import run_study
+    from foilmap.run.local import drive_study
     from foilmap.store.lock import describe_holder
 
     def waiting(holder):
         print(f"foilmap: {str(out)!r} is in use by {describe_holder(holder)}; waiting for it",
               file=sys.stderr, flush=True)
 
-    summaries = run_study(study, out, workers=workers, budget=budget,
+    summaries = drive_study(study, out, workers=workers, budget=budget,
                           progress=Progress.for_study(study, budget), engine=engine,
                           scheduler=scheduler, wait=None if wait else 0.0, what=what,
                           on_wait=waiting)

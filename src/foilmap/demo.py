@@ -16,7 +16,7 @@ from foilmap.report.study import plot_runs
 from foilmap.section.evaluation import analyse
 from foilmap.store.folder import StudyFolder
 from foilmap.store.sectionfile import format_section, write_text_atomic
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 __all__ = ["run_demo", "DEMO_FILES"]
 
@@ -30,7 +30,7 @@ def run_demo(out: Path, workers: int | None, run_folder) -> int:
     ``run_folder(study, out, workers, budget)``, then write its plots and best section and
     print what it found; returns ``run_folder``'s exit code."""
     text = files("foilmap").joinpath("data/demo.toml").read_text(encoding="utf-8")
-    study = parse_study(text, "foilmap demo")
+    study = load_study_text(text, "foilmap demo")
     out = Path(out)
     if out.exists():
         shutil.rmtree(out)

@@ -155,7 +155,7 @@ def run_study(study: Study, folder: str | Path, *, workers: int | None = None,
     from foilmap.report.progress import Progress
     from foilmap.run import local as _engine
 
-    summaries = _engine.run_study(
+    summaries = _engine.drive_study(
         study, Path(folder), workers=workers, budget=budget,
         progress=Progress.for_study(study, budget) if progress else None, engine=engine,
         scheduler=scheduler)

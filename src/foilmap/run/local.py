@@ -1,6 +1,6 @@
 """The local engine: runs of a study in spawned worker processes on this machine.
 
-:func:`run_study` prepares the study folder (:class:`~foilmap.store.folder.StudyFolder`),
+:func:`drive_study` prepares the study folder (:class:`~foilmap.store.folder.StudyFolder`),
 hands every unfinished run to an engine (this machine's process pool, or a Dask cluster through
 :mod:`foilmap.run.cluster`), keeps the index and the progress as runs report, and on the first
 Ctrl-C or SIGTERM commits every run, marks the unfinished ones interrupted and leaves no process
@@ -30,7 +30,7 @@ from foilmap.store.lock import Busy
 from foilmap.store.folder import INDEXED, StudyFolder
 from foilmap.store.lock import FOLDER_LOCK, Lock
 
-__all__ = ["run_study", "ABORT_GRACE", "workers_without_main"]
+__all__ = ["drive_study", "ABORT_GRACE", "workers_without_main"]
 
 #: seconds an interrupted study gives its workers to commit before they are killed
 ABORT_GRACE = 20.0
@@ -97,9 +97,9 @@ def workers_without_main():
             sys.modules["__main__"] = main
 
 
-def run_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
-              progress=None, engine: str | None = None, scheduler: str | None = None,
-              wait: float | None = 0.0, what: str = "foilmap run", on_wait=None) -> list[dict]:
+def drive_study(study: Study, out: Path, workers: int | None = None, budget: int | None = None,
+               progress=None, engine: str | None = None, scheduler: str | None = None,
+               wait: float | None = 0.0, what: str = "foilmap run", on_wait=None) -> list[dict]:
     """Run every unfinished run of a study; returns the summaries of the runs run now.
 
     ``engine`` is ``"local"`` (a process pool of ``workers`` on this machine) or ``"dask"`` (a

@@ -29,7 +29,7 @@ from foilmap.errors import InputError
 from foilmap.section.status import Status
 from foilmap.store.runlog import RunLog, read_run
 from foilmap.store.sectionfile import write_text_atomic
-from foilmap.store.studyfile import parse_study
+from foilmap.store.studyfile import load_study_text
 
 __all__ = ["StudyFolder", "RunFront", "collect_fronts", "INDEX_NAME", "STUDY_NAME",
            "OPTIONS_NAME", "is_multi_objective"]
@@ -126,7 +126,7 @@ class StudyFolder:
             if not sfile.exists():
                 raise InputError(f"{str(self.path)!r} is not a study folder (no {STUDY_NAME})")
             opts = self._options()
-            study = parse_study(sfile.read_text(encoding="utf-8"), str(sfile),
+            study = load_study_text(sfile.read_text(encoding="utf-8"), str(sfile),
                                 opts.get("base_dir"))
             budget = opts.get("budget")
             self._study = study.with_budget(budget) if budget is not None else study

@@ -14,7 +14,7 @@ from foilmap.design.study import Study
 from foilmap.design.study import parse_study as _parse_text
 from foilmap.errors import InputError, read_input_text
 
-__all__ = ["load_study", "parse_study", "read_start", "read_target"]
+__all__ = ["load_study", "load_study_text", "read_start", "read_target"]
 
 #: coefficient pairs fitted to a coordinates file given as a start (a run keeps its first N)
 START_FIT_PAIRS = 32
@@ -48,7 +48,7 @@ def read_target(name: str, base_dir: str) -> tuple:
     return (tuple(map(float, t.x)), tuple(map(bool, t.upper)), tuple(map(float, t.cp)))
 
 
-def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
+def load_study_text(text: str, source: str = "<text>", base_dir: str | None = None) -> Study:
     """Parse and validate a study's text, reading its start files.
 
     Relative paths in the study (``shape.start``) are read from ``base_dir``, by default the
@@ -62,4 +62,4 @@ def parse_study(text: str, source: str = "<text>", base_dir: str | None = None) 
 
 def load_study(path: str | Path) -> Study:
     """Read and validate a study file."""
-    return parse_study(read_input_text(path, "study"), str(path))
+    return load_study_text(read_input_text(path, "study"), str(path))
