@@ -167,16 +167,51 @@ def lighthill_contour(c: np.ndarray, a: float, intervals: int) -> np.ndarray:
     return np.concatenate([[0.0], np.cumsum(parts)])
 
 
-def lighthill_speed(c: np.ndarray, a: float, alpha: float, phi: np.ndarray) -> np.ndarray:
-    """q(φ) of the Kutta flow at circle-plane angle ``alpha`` (radians)."""
+def lighthill_speed(c: np.ndarray, a: float, alpha: float, phi: np.ndarray,
+                    series: np.ndarray | None = None) -> np.ndarray:
+    """q(φ) of the Kutta flow at circle-plane angle ``alpha`` (radians); ``series`` is
+    Σ Cₙ e^{−inφ} at ``phi`` when already known."""
     phi = np.asarray(phi, dtype=float)
+    ser = _series(c, phi) if series is None else series
     with np.errstate(divide="ignore"):
         lnq = (np.log(4.0 * np.abs(np.sin(0.5 * phi) * np.cos(0.5 * phi - alpha)))
-               - a * np.log(2.0 * np.abs(np.sin(0.5 * phi))) - np.real(_series(c, phi)))
+               - a * np.log(2.0 * np.abs(np.sin(0.5 * phi))) - np.real(ser))
     return np.exp(lnq)
 
 
-def _closed_series(phi, p, weight, a, terms, smoothing: float | None = None):
+class _PhiGrid:
+    """The fixed circle-plane grid of one inverse solve, for its many steps: the series matrix
+    e^{−inφ}, the closure basis (cos nφ, sin nφ, n ≥ 2) and the last factorised normal
+    equations of :func:`_closed_series`, reused while the point weights stay the same (they
+    change only when the shape moves a point across a target's end or a speed threshold)."""
+
+    def __init__(self, phi: np.ndarray, terms: int):
+        self.phi = phi
+        self.terms = terms
+        self.exp = np.exp(-1j * np.multiply.outer(phi, np.arange(terms)))
+        n = np.arange(2, terms)
+        self.basis = np.concatenate([np.cos(np.multiply.outer(phi, n)),
+                                     np.sin(np.multiply.outer(phi, n))], axis=1)
+        self._weight = None
+        self._factor = None
+
+    def series(self, c: np.ndarray) -> np.ndarray:
+        """Σ Cₙ e^{−inφ} on the grid (as :func:`_series`, bit for bit)."""
+        return self.exp[:, : c.size] @ c
+
+    def normal_factor(self, weight: np.ndarray, pen: np.ndarray):
+        """LU factors of Bᵀ W B + diag(pen) for these weights (computed once per weights)."""
+        from scipy.linalg import lu_factor
+
+        if self._weight is None or not np.array_equal(weight, self._weight):
+            gram = (self.basis * weight[:, None]).T @ self.basis + np.diag(pen)
+            self._factor = lu_factor(gram)
+            self._weight = weight.copy()
+        return self._factor
+
+
+def _closed_series(phi, p, weight, a, terms, smoothing: float | None = None,
+                   grid: "_PhiGrid | None" = None):
     """The coefficients C of a closed section (C₀ = 0, C₁ = a) whose P = Re Σ Cₙ e^{−inφ} is
     nearest to ``p`` in the least-squares sense with point weights ``weight``, with a penalty
     ``smoothing`` · Σ (n/10)⁴ |Cₙ|² against roughness.
@@ -186,14 +221,19 @@ def _closed_series(phi, p, weight, a, terms, smoothing: float | None = None):
     target the change and the free part come out together, smooth across the ends of the
     target."""
     n = np.arange(2, terms)
-    basis = np.concatenate([np.cos(np.multiply.outer(phi, n)),
-                            np.sin(np.multiply.outer(phi, n))], axis=1)
     y = p - a * np.cos(phi)
     m = phi.size
     smoothing = SMOOTHING if smoothing is None else smoothing
     pen = smoothing * m * np.concatenate([(n / 10.0) ** 4, (n / 10.0) ** 4])
-    gram = (basis * weight[:, None]).T @ basis + np.diag(pen)
-    sol = np.linalg.solve(gram, (basis * weight[:, None]).T @ y)
+    if grid is not None:  # the steps of one solve: the basis and its factors kept
+        from scipy.linalg import lu_solve
+
+        sol = lu_solve(grid.normal_factor(weight, pen), (grid.basis * weight[:, None]).T @ y)
+    else:
+        basis = np.concatenate([np.cos(np.multiply.outer(phi, n)),
+                                np.sin(np.multiply.outer(phi, n))], axis=1)
+        gram = (basis * weight[:, None]).T @ basis + np.diag(pen)
+        sol = np.linalg.solve(gram, (basis * weight[:, None]).T @ y)
     c = np.zeros(terms, dtype=complex)
     c[1] = a
     c[2:] = sol[: n.size] + 1j * sol[n.size :]
@@ -305,6 +345,8 @@ def inverse_design(target: Target, *, cl: float | None = None, alpha: float | No
     start = section_coefficients(SectionSet.single(offset_circle_coefficients(-0.1, 24),
                                                    np.degrees(te_angle)), terms, 4 * grid)
 
+    fixed = _PhiGrid(phi, terms)  # this solve's grid, its basis and factors
+
     def pack(c):
         return np.concatenate([c[2:].real, c[2:].imag])
 
@@ -318,7 +360,7 @@ def inverse_design(target: Target, *, cl: float | None = None, alpha: float | No
         def step(v):
             try:
                 c_new, _ = _lighthill_step(unpack(v), a, cl, alpha, phi, surfaces, terms,
-                                           te_weight)
+                                           te_weight, fixed)
             except ValueError:  # a contour that has folded
                 return np.full(v.size, np.nan)
             return pack(c_new)
@@ -408,7 +450,7 @@ def _mix(step, x, beta: float, depth: int, iterations: int, tol: float):
     return x, change, it
 
 
-def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None):
+def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None, grid=None):
     """One step of Lighthill's inverse on the current shape: the target read at x(φ), ln q
     moved to it (at most ``STEP_LIMIT`` per point; points slower than ``QMIN`` in the target
     or the current flow, near the stagnation points, and points the target does not cover
@@ -421,7 +463,8 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None):
         alpha_c = float(alpha + shape.gamma)
     x = shape.zc.real[1:-1:2]  # the odd points of the contour grid are the FFT grid
     upper = phi < shape.phi[shape.j_le]
-    q_now = lighthill_speed(c, a, alpha_c, phi)
+    ser_now = _series(c, phi) if grid is None else grid.series(c)
+    q_now = lighthill_speed(c, a, alpha_c, phi, ser_now)
     q_t = q_now.copy()
     covered = np.zeros(m, dtype=bool)
     spans = np.zeros(m, dtype=bool)  # the target's span: read, or its unread trailing-edge zone
@@ -443,7 +486,7 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None):
     rows = covered & (s > 0.0)
     dlnq = np.clip(np.where(rows, s * s * (3.0 - 2.0 * s) * dlnq, 0.0), -STEP_LIMIT,
                    STEP_LIMIT)
-    p_now = np.real(_series(c, phi))
+    p_now = np.real(ser_now)
     p_t = p_now - dlnq
     # weights: 1 where the target is read; 0 inside its span where it is not (the smooth
     # series decides: near the stagnation points, in the trailing-edge zone); FREE_WEIGHT
@@ -464,8 +507,9 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None):
             p_t[zone] = icept + slope * phi[zone]
             weight[zone] = te_weight
             te_dev = max(te_dev, float(np.max(np.abs(p_now[zone] - p_t[zone]))))
-    c_new = _closed_series(phi, p_t, weight, a, terms)
-    dp = np.where(rows, p_t - np.real(_series(c_new, phi)), 0.0)
+    c_new = _closed_series(phi, p_t, weight, a, terms, grid=grid)
+    dp = np.where(rows, p_t - np.real(_series(c_new, phi) if grid is None
+                                      else grid.series(c_new)), 0.0)
     return c_new, {"alpha_circle": alpha_c, "given": covered, "x": x, "upper": upper,
                    "closure_dlnq": dp, "te_departure": te_dev}
 
