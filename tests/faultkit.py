@@ -63,7 +63,12 @@ def generations(log: Path) -> int:
     a test that polls must not take it (``foilmap status`` and ``read_run`` do take it)."""
     import h5py
 
+    from foilmap.store.runlog import _check_length
+
     try:
+        # a log truncated on purpose first: HDF5's SWMR reader retries the missing metadata
+        # for minutes (what the store's reader checks too)
+        _check_length(log)
         with h5py.File(log, "r", libver="latest", swmr=True, locking=False) as f:
             return int(f["gen/evaluations"].shape[0])
     except Exception:  # noqa: BLE001 - missing, being written, or damaged on purpose
