@@ -227,13 +227,11 @@ def analyse(
         fitted section's source line, :class:`~foilmap.store.sectionfile.SectionRecord`):
         angles, Cl, the lift slope, the zero-lift angle and Cm c/4 are then measured from the
         line from this point to the trailing edge.  Geometry and stations stay in the own frame.
-        Not given: the sections' own ``reference_le`` if they carry one (what
-        ``SectionRecord.to_set`` returns for a fitted section), else the own chord line.
+        Not given: the own chord line (the kernel takes its lines explicitly; the public calls
+        of :mod:`foilmap.api` pass a fitted section's own).
     """
     if (cl is None) == (alpha is None):
         raise ValueError("give exactly one of cl and alpha")
-    if reference_le is None:
-        reference_le = getattr(sections, "reference_le", None)
     unknown = set(proxies) - set(PROXIES)
     if unknown:
         raise ValueError(f"unknown proxies {sorted(unknown)}; allowed: {', '.join(PROXIES)}")
