@@ -176,3 +176,39 @@ def test_a_reopen_waits_for_a_reader_holding_the_log(tmp_path, monkeypatch):
         reader.wait(timeout=30)
         assert opened - since >= 0.8 * held  # it met the lock and waited for the reader
         assert read_run(path).generations == log.generations
+
+
+def _cut_hdf5(tmp_path):
+    """An HDF5 file of the logs' superblock layout, and the same file cut 200 bytes short."""
+    import h5py
+
+    p = tmp_path / "r.h5"
+    with h5py.File(p, "w", libver="latest") as f:
+        f.create_dataset("x", data=np.arange(1000.0))
+    whole = p.read_bytes()
+    p.write_bytes(whole[:-200])
+    return p, whole
+
+
+def test_a_short_log_is_named_at_once_by_the_lock_holder_and_after_a_wait_by_readers(
+        tmp_path, monkeypatch):
+    # the run's lock holder (a resume) reads a short log as truncated at once; a reader
+    # (status, beside a live writer) gives a writer's flush time before it says so
+    p, _ = _cut_hdf5(tmp_path)
+    sleeps = []
+    monkeypatch.setattr(runlog.time, "sleep", sleeps.append)
+    with pytest.raises(OSError, match="is truncated"):
+        runlog.read_run(p, settle=False)
+    assert sleeps == []
+    with pytest.raises(OSError, match="is truncated"):
+        runlog.read_run(p)
+    assert len(sleeps) == 5 and sum(sleeps) == pytest.approx(0.75)
+
+
+def test_a_log_that_a_writer_lengthens_meanwhile_is_read(tmp_path, monkeypatch):
+    p, whole = _cut_hdf5(tmp_path)
+    monkeypatch.setattr(runlog.time, "sleep", lambda s: p.write_bytes(whole))
+    runlog._check_length(p)  # the flush landed during the first wait: no error
+    p.write_bytes(whole[:-200])
+    with pytest.raises(OSError, match=r"is truncated \(\d+ of \d+ bytes\)"):
+        runlog._check_length(p, settle=False)

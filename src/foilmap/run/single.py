@@ -78,12 +78,13 @@ def recover(log_path: Path, ckpt_path: Path, run_id: str):
     last generation on which both agree is then 0: a run has one checkpoint), which gives the
     same bits as before, only later.  ``note`` is one line saying what was found and done (None
     when nothing was amiss: a log a few rows ahead of its checkpoint is the normal state of a
-    killed run).
+    killed run).  The caller holds the run's lock, so nobody else writes the log: a short file
+    is truncated, not being flushed, and is named at once.
     """
     log, log_err = None, None
     if log_path.exists():
         try:
-            log = read_run(log_path)
+            log = read_run(log_path, settle=False)  # the caller holds the run's lock
         except Exception as exc:  # noqa: BLE001 - any damage: keep what can be kept below
             log_err = f"{type(exc).__name__}: {str(exc).splitlines()[0] if str(exc) else ''}"
     try:
@@ -99,7 +100,7 @@ def recover(log_path: Path, ckpt_path: Path, run_id: str):
     if log_err is not None:
         # keep what is readable: the rows up to the checkpoint's generation, if they are whole
         try:
-            log = read_run(log_path, upto=g)
+            log = read_run(log_path, upto=g, settle=False)
         except Exception:  # noqa: BLE001
             return None, 0, None, _seed_note(
                 run_id, f"log {log_path.name} is damaged ({log_err})", None)
@@ -157,8 +158,8 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
     from foilmap.design.search import is_finished, new_search, step
 
     log_path, ckpt_path = folder.log_path(run.run_id), folder.checkpoint_path(run.run_id)
-    if folder.is_complete(run.run_id):  # (an unreadable log, killed before its first flush,
-        ckpt_path.unlink(missing_ok=True)  # starts again)
+    if folder.is_complete(run.run_id, settle=False):  # (an unreadable log, killed before its
+        ckpt_path.unlink(missing_ok=True)  # first flush, starts again; we hold its lock)
         return folder.summary(run.run_id)
     start = _station_starts(study, run, folder, report, should_stop) if run.family else None
     problem = build_problem(study, run, start)

@@ -163,18 +163,19 @@ class StudyFolder:
 
     # --- runs ----------------------------------------------------------------------------
 
-    def log(self, run_id: str) -> RunLog | None:
-        """A run's log, or None when it has none yet or it cannot be read."""
+    def log(self, run_id: str, settle: bool = True) -> RunLog | None:
+        """A run's log, or None when it has none yet or it cannot be read (``settle``: see
+        :func:`~foilmap.store.runlog.read_run`)."""
         path = self.log_path(run_id)
         if not path.exists():
             return None
         try:
-            return read_run(path)
+            return read_run(path, settle=settle)
         except (OSError, KeyError, ValueError):
             return None
 
-    def is_complete(self, run_id: str) -> bool:
-        log = self.log(run_id)
+    def is_complete(self, run_id: str, settle: bool = True) -> bool:
+        log = self.log(run_id, settle)
         return log is not None and log.state is RunState.COMPLETE
 
     def summary(self, run_id: str) -> dict:

@@ -323,26 +323,30 @@ def generation_digest(evals, gen, front_index, g: int) -> str:
     return h.hexdigest()
 
 
-def read_run(path: str | Path, upto: int | None = None) -> RunLog:
+def read_run(path: str | Path, upto: int | None = None, settle: bool = True) -> RunLog:
     """Read a run log, also while another process is writing it (SWMR).
 
     ``upto`` reads only the first ``upto`` generations (and their evaluations and archives):
     what a resume keeps of a log whose later rows are damaged.  A damaged file raises
-    ``OSError``, ``KeyError`` or ``ValueError`` (HDF5's other errors become ``OSError``)."""
+    ``OSError``, ``KeyError`` or ``ValueError`` (HDF5's other errors become ``OSError``).
+    ``settle`` gives a live writer's flush a second to lengthen a file that reads short; the
+    holder of the run's lock (nobody else writes the log then) passes False, and a truncated
+    log is then named at once."""
     try:
-        return _read_run(Path(path), upto)
+        return _read_run(Path(path), upto, settle)
     except (OSError, KeyError, ValueError):
         raise
     except Exception as exc:  # noqa: BLE001 - h5py reports some damage as RuntimeError
         raise OSError(f"{type(exc).__name__}: {exc}") from exc
 
 
-def _check_length(path: Path) -> None:
+def _check_length(path: Path, settle: bool = True) -> None:
     """Raise ``OSError`` when the file is shorter than the end its HDF5 superblock records (a
     truncated log: HDF5's SWMR reader does not check this itself, and then retries its reads
     of the missing metadata for minutes).  A live writer's flush can leave the file short for a
-    moment, so the check is repeated for a fraction of a second before it counts."""
-    for attempt in range(6):
+    moment, so the check is repeated for 0.75 s before it counts (when ``settle``)."""
+    tries = 6 if settle else 1
+    for attempt in range(tries):
         with open(path, "rb") as fh:
             head = fh.read(48)
             size = os.fstat(fh.fileno()).st_size
@@ -358,7 +362,8 @@ def _check_length(path: Path) -> None:
         (end,) = struct.unpack("<Q", head[12 + 2 * width:12 + 3 * width])
         if size >= end:
             return
-        time.sleep(0.05 * (attempt + 1))
+        if attempt + 1 < tries:
+            time.sleep(0.05 * (attempt + 1))
     raise OSError(f"log {path.name} is truncated ({size} of {end} bytes)")
 
 
@@ -381,10 +386,10 @@ def _open_for_writing(path: Path):
             time.sleep(0.02)
 
 
-def _read_run(path: Path, upto: int | None) -> RunLog:
+def _read_run(path: Path, upto: int | None, settle: bool = True) -> RunLog:
     import h5py
 
-    _check_length(path)
+    _check_length(path, settle)
     with h5py.File(path, "r", libver="latest", swmr=True) as f:
         for ds in ("evals/x", "gen/evaluations"):
             f[ds].refresh()
