@@ -257,10 +257,11 @@ def test_recover_keeps_the_whole_generations_of_a_damaged_log(tmp_path, cut_run,
     log, ckpt = folder.log_path("p.s1"), folder.checkpoint_path("p.s1")
     real = single.read_run
 
-    def damaged_after_checkpoint(path, upto=None):
+    def damaged_after_checkpoint(path, upto=None, settle=True):
+        assert settle is False  # the lock's holder: nobody else is flushing this log
         if upto is None:
             raise OSError("rows past the last commit are cut")
-        return real(path, upto=upto)
+        return real(path, upto=upto, settle=settle)
 
     monkeypatch.setattr(single, "read_run", damaged_after_checkpoint)
     state, g, old, note = recover(log, ckpt, "p.s1")
@@ -269,7 +270,7 @@ def test_recover_keeps_the_whole_generations_of_a_damaged_log(tmp_path, cut_run,
                     "the last commit are cut); keeps its 7 whole generations and continues "
                     "from the checkpoint")
 
-    def damaged_throughout(path, upto=None):
+    def damaged_throughout(path, upto=None, settle=True):
         raise OSError("unreadable")
 
     monkeypatch.setattr(single, "read_run", damaged_throughout)
