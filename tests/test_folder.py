@@ -59,8 +59,13 @@ def test_index_lists_every_run_pending_unless_told(tmp_path):
     assert list(index) == ["p.s1", "p.s2"]
     assert index["p.s1"]["state"] == "pending" and index["p.s2"]["state"] == "interrupted"
     assert index["p.s2"]["file"] == "runs/p.s2.h5" and index["p.s2"]["seed"] == 2
-    on_disk = json.loads((tmp_path / "o" / "index.json").read_text())
+    text = (tmp_path / "o" / "index.json").read_text()
+    on_disk = json.loads(text)
     assert on_disk["study"] == "folder" and len(on_disk["runs"]) == 2
+    assert set(on_disk) == {"schema_version", "software", "study", "updated", "runs"}
+    # one run a line, readable with grep and diff
+    lines = text.splitlines()
+    assert [json.loads(line.rstrip(","))["run"] for line in lines[1:-1]] == ["p.s1", "p.s2"]
 
 
 @pytest.mark.parametrize("indexed,logged,state", [

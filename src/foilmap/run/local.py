@@ -34,6 +34,9 @@ __all__ = ["drive_study", "ABORT_GRACE", "workers_without_main"]
 
 #: seconds an interrupted study gives its workers to commit before they are killed
 ABORT_GRACE = 20.0
+#: least seconds between two rewrites of the index while runs start and end (the study's end
+#: and an interrupt write it at once)
+INDEX_INTERVAL = 0.5
 
 
 # --- the local process pool --------------------------------------------------------------------
@@ -337,6 +340,20 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
 
         backend.on_message = live
         backend.on_start = start
+    due = [0.0]  # when the index may be written again (monotonic seconds)
+    stale = [False]  # states changed since the index was last written
+
+    def write_index(now: bool = False) -> None:
+        """Rewrite the index, at most every INDEX_INTERVAL while runs start and end (a thousand
+        tiny runs otherwise rewrite an index of a thousand entries two thousand times): what
+        changed meanwhile is written by the loop's next turn, within INDEX_INTERVAL.  ``now``
+        for an interrupt."""
+        t = time.monotonic()
+        if now or t >= due[0]:
+            folder.write_index(states)
+            due[0], stale[0] = t + INDEX_INTERVAL, False
+        else:
+            stale[0] = True
     try:
         futures = {backend.submit(args, r.run_id, folder.path): r for r in todo}
         for order, fut in enumerate(futures):
@@ -347,8 +364,8 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
         pending = set(futures)
         while pending:
             done, pending = backend.wait(pending, 0.5)
-            if _drain(backend.messages(), progress, states):
-                folder.write_index(states)  # live status sees the run as running
+            if _drain(backend.messages(), progress, states) or stale[0]:
+                write_index()  # live status sees the run as running
             for fut in done:
                 r = futures.pop(fut)
                 try:
@@ -373,7 +390,7 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
                     states[r.run_id]["note"] = note
                 if progress is not None:
                     progress.run_ended(r.run_id, s["state"], s.get("best"), s.get("error"), s)
-                folder.write_index(states)
+                write_index()
         _drain(backend.messages(), progress, states)
     except BaseException:
         # an interrupt (Ctrl-C, SIGTERM) or an engine failure: a second signal must not break
@@ -387,7 +404,7 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
                 if st.get("state") in (RunState.QUEUED.value, RunState.RUNNING.value):
                     st["state"] = RunState.INTERRUPTED.value
             backend.abort()
-            folder.write_index(states)
+            write_index(now=True)
         finally:
             for sig, handler in old.items():
                 signal.signal(sig, handler)
