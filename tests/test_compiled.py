@@ -4,6 +4,7 @@ that covers every kernel file."""
 from __future__ import annotations
 
 import shutil
+from pathlib import Path
 
 import numba
 import pytest
@@ -104,3 +105,28 @@ def test_other_files_keep_numbas_own_locator(name, tmp_path):
     ns = {}
     exec(compile(other.read_text(), str(other), "exec"), ns)
     assert _kcache._KernelLocator.from_function(ns["f"], str(other)) is None
+
+
+def test_the_driver_warms_the_cache_once_per_kernel_version(tmp_path, monkeypatch):
+    # the first driver after an edit of a kernel file compiles (or loads) every entry point
+    # before its workers start; later drivers skip it while the marker of that version stands
+    from foilmap.section import _compiled
+
+    calls = []
+    monkeypatch.setattr(_compiled, "warm_up", lambda: calls.append(1))
+    marker = tmp_path / "stamp.nbw"
+    monkeypatch.setattr(_compiled, "_warm_marker", lambda: marker)
+    assert _compiled.warm_cache() and marker.exists() and calls == [1]
+    assert not _compiled.warm_cache() and calls == [1]
+    marker.unlink()  # the cache cleared (or another version of the kernels)
+    assert _compiled.warm_cache() and calls == [1, 1]
+
+
+def test_the_warm_marker_names_the_kernels_version_beside_the_cache():
+    from foilmap.section import _compiled
+    from foilmap.section._kcache import kernel_stamp
+
+    marker = _compiled._warm_marker()
+    assert marker is not None and marker.suffix == ".nbw"
+    assert marker.parent == Path(_compiled.search_batch._cache._cache_path)
+    assert kernel_stamp()[:16] in marker.name

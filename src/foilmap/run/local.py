@@ -165,12 +165,12 @@ def _run_locked(study, out, workers, budget, progress, engine, scheduler) -> lis
     if here:
         return _drive(_InProcessBackend(), folder, todo, (study,), states, progress)
     if min(workers, len(todo)) > 1:
-        # several workers start at once: compile (or load) here first, so that they load the
-        # compiled kernel from the cache instead of each compiling it; a single worker loads
-        # it itself (loading it here too cost every study a second)
+        # several workers start at once: compile here first (once per kernel version), so
+        # that they load the compiled kernel from the cache instead of each compiling it; a
+        # single worker loads it itself (loading it here too cost every study a second)
         from foilmap.section import _compiled
 
-        _compiled.warm_up()
+        _compiled.warm_cache()
     args = (study,)
     # a LocalCluster starts its workers here: single-threaded, and without the caller's script
     with _single_threaded_kernels(), workers_without_main():

@@ -24,9 +24,13 @@ The bounds are derived in docs/method.md ("What is exact between samples").
 
 from __future__ import annotations
 
+import sys
+from pathlib import Path
+
 import numpy as np
 
 from foilmap.section._kbounds import _arc_bounds, _prepare, _workspace
+from foilmap.section._kcache import _stamp
 from foilmap.section._kconst import (
     DEFAULT_PROXY_END,
     FIGURES,
@@ -58,7 +62,7 @@ from foilmap.section._ksearch import search_batch
 from foilmap.section._kvalid import _contour_keys, _frame, critical_batch, validity_batch
 
 __all__ = ["PEAK_TOLERANCE", "map_point", "peak_batch", "validity_batch", "search_batch",
-           "critical_batch", "warm_up", "FIGURES", "floor_at", "floor_stations",
+           "critical_batch", "warm_up", "warm_cache", "FIGURES", "floor_at", "floor_stations",
            "FLOOR_START", "FLOOR_NOSE", "FLOOR_TAPER", "FLOOR_END", "FLOOR_STATIONS",
            "FLOOR_TAIL", "FLOOR_TAIL_RATIO", "FLOOR_BETWEEN",
            "V_OK", "V_CRITICAL", "V_SINGULAR", "V_BRANCH_CUT", "V_FOLDED", "V_CROSSED",
@@ -86,3 +90,36 @@ def warm_up() -> None:
     for design_peak in (True, False):  # the forms commands and searches call
         search_batch(a, tau, np.array([0.5]), 64, radius, DEFAULT_SINGULAR_MARGIN,
                      DEFAULT_PROXY_END, np.zeros(0), 0, 0.0, PEAK_TOLERANCE, design_peak, 0.005)
+
+
+def _warm_marker() -> Path | None:
+    """The file that says numba's cache holds every entry point of these kernel files: beside
+    the cache's own files (a ``.nbw`` among its ``.nbi`` and ``.nbc``, so that clearing the
+    cache clears it too), named for the kernels' stamp and the numba and Python versions."""
+    path = getattr(getattr(search_batch, "_cache", None), "_cache_path", None)
+    if not path:
+        return None
+    import numba
+
+    v = sys.version_info
+    return Path(path) / (f"foilmap-kernels-{_stamp()[:16]}-numba{numba.__version__}"
+                         f"-py{v.major}{v.minor}.nbw")
+
+
+def warm_cache() -> bool:
+    """:func:`warm_up` unless it has run since the kernel files last changed (True when it ran).
+
+    Loading every entry point from a warm cache costs the driver half a second before its
+    workers start, each of which loads them again anyway: once the cache is known to be warm the
+    driver skips it.  A marker that outlived the cache files costs only that the workers compile
+    at once, each for itself."""
+    marker = _warm_marker()
+    if marker is not None and marker.exists():
+        return False
+    warm_up()
+    if marker is not None:
+        try:
+            marker.touch()
+        except OSError:
+            pass  # a read-only install: the driver warms up every time, as before
+    return True
