@@ -31,6 +31,35 @@ coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
 """
 
 
+def reference_folder(tmp_path_factory, text: str) -> tuple[Path, Path]:
+    """``(study file, folder)`` of the uninterrupted study ``text``, run once per test session
+    and shared by the session's pytest workers (a file lock: the first to come runs it, the
+    others wait for it).  It runs in this process, one run after another: the fault tests then
+    check that the runs they cut through real processes end with the bits of the in-process
+    engine, and a reference costs no process start-up."""
+    import fcntl
+    import hashlib
+
+    from foilmap.run.single import execute_run
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.studyfile import load_study_text
+
+    base = tmp_path_factory.getbasetemp()
+    root = base.parent if os.environ.get("PYTEST_XDIST_WORKER") else base
+    key = hashlib.sha256(text.encode()).hexdigest()[:16]
+    here = root / f"reference-{key}"
+    with open(root / f"reference-{key}.lock", "w") as fh:
+        fcntl.flock(fh, fcntl.LOCK_EX)
+        if not (here / "done").exists():
+            here.mkdir(exist_ok=True)
+            (here / "s.toml").write_text(text)
+            folder, study = StudyFolder.prepare(load_study_text(text), here / "ref", None)
+            for run in study.runs():
+                execute_run(study, run, folder.path)
+            (here / "done").touch()
+    return here / "s.toml", here / "ref"
+
+
 def cli(*args, cwd=None, timeout=300):
     """Run the foilmap command in a subprocess, as a user would."""
     return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],

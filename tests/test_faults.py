@@ -16,7 +16,7 @@ import time
 from pathlib import Path
 
 import pytest
-from conftest import small_study
+from conftest import reference_folder, small_study
 from faultkit import (
     index_states,
     notes_in,
@@ -28,6 +28,7 @@ from faultkit import (
 from test_search import logs_equal
 
 from foilmap.run import single
+from foilmap.report.study import damage_lines
 from foilmap.run.single import execute_run, recover
 from foilmap.store.folder import StudyFolder
 from foilmap.store.lock import Lock
@@ -76,14 +77,7 @@ def check_same_bits(out: Path, ref: Path) -> None:
 @pytest.fixture(scope="module")
 def loop_ref(tmp_path_factory, key_dir):
     """The uninterrupted study of the kill loops (two runs of 12,000 evaluations)."""
-    d = tmp_path_factory.mktemp("ref")
-    sf = d / "s.toml"
-    sf.write_text(study_text(12000))
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
-                        str(d / "ref"), "--workers", "2"], capture_output=True, text=True,
-                       timeout=600)
-    assert r.returncode == 0, r.stderr
-    return sf, d / "ref"
+    return reference_folder(tmp_path_factory, study_text(12000))
 
 
 def prepared(out: Path) -> bool:
@@ -176,14 +170,8 @@ def test_ten_random_kills_then_resume_give_the_same_bits(tmp_path, loop_ref, kin
 
 @pytest.fixture(scope="module")
 def quick_ref(tmp_path_factory, key_dir):
-    d = tmp_path_factory.mktemp("quickref")
-    sf = d / "s.toml"
-    sf.write_text(study_text(3000))
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
-                        str(d / "ref"), "--workers", "2"], capture_output=True, text=True,
-                       timeout=600)
-    assert r.returncode == 0, r.stderr
-    return sf, d / "ref"
+    """The uninterrupted quick study (two runs of 3,000 evaluations)."""
+    return reference_folder(tmp_path_factory, study_text(3000))
 
 
 def test_a_killed_driver_its_orphans_and_an_immediate_resume(tmp_path, quick_ref):
@@ -251,6 +239,12 @@ def test_truncated_logs_and_checkpoints_in_process(tmp_path, monkeypatch, key_di
         assert rows[run_id].get("damage"), rows[run_id]  # status names the damage ...
         for other in set(RUNS) - {run_id}:
             assert not rows[other].get("damage")  # ... of that run alone
+        if cut == 1:  # and so does the command, in a line of its own
+            r = subprocess.run([sys.executable, "-m", "foilmap.cli", "status", str(out)],
+                               capture_output=True, text=True, timeout=120)
+            assert r.returncode == 0, r.stderr
+            named = [line for line in r.stdout.splitlines() if line.startswith("damage: run ")]
+            assert len(named) == 1 and named[0].startswith(f"damage: run {run_id}: "), r.stdout
         notes = {}
         for r in RUNS:
             _, _, _, note = recover(folder.log_path(r), folder.checkpoint_path(r), r)
@@ -315,10 +309,10 @@ def test_ten_truncations_between_kills_then_resume_give_the_same_bits(tmp_path, 
     damaged: set[str] = set()  # runs ever damaged (a resume killed early may not reach them)
 
     def named_by_status() -> set[str]:
-        st = subprocess.run([sys.executable, "-m", "foilmap.cli", "status", str(out)],
-                            capture_output=True, text=True, timeout=60)
-        assert st.returncode == 0, st.stderr
-        return {r for r in RUNS if f"damage: run {r}:" in st.stdout}
+        # the status command's damage lines, from this process (the driver is gone by now;
+        # the command itself is tested on a damaged folder in test_wording.py)
+        lines = "\n".join(damage_lines(StudyFolder(out).status()))
+        return {r for r in RUNS if f"damage: run {r}:" in lines}
 
     for k in range(10):
         args = (["resume", out] if prepared(out) else ["run", sf, "--out", out]) + ["--workers",

@@ -12,7 +12,7 @@ import sys
 import time
 
 import pytest
-from conftest import small_study
+from conftest import reference_folder, small_study
 from faultkit import alive, start, wait_gone, wait_running, workers_of
 from test_search import logs_equal
 
@@ -32,14 +32,8 @@ def key_dir(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def ref(tmp_path_factory, key_dir):
-    d = tmp_path_factory.mktemp("ref")
-    sf = d / "s.toml"
-    sf.write_text(small_study("drv", [1, 2], 3000))
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
-                        str(d / "ref"), "--workers", "2"], capture_output=True, text=True,
-                       timeout=600)
-    assert r.returncode == 0, r.stderr
-    return sf, d / "ref"
+    """The uninterrupted study (two runs of 3,000 evaluations; the fault tests' quick one)."""
+    return reference_folder(tmp_path_factory, small_study("faults", [1, 2], 3000))
 
 
 def interrupt_loop(tries: int, sf, ref, out, seed: int) -> None:
