@@ -13,7 +13,7 @@ import time
 from pathlib import Path
 
 import pytest
-from conftest import small_study
+from conftest import reference_folder, small_study
 from test_search import logs_equal
 
 from foilmap.run.local import drive_study
@@ -47,11 +47,11 @@ def test_forty_runs_on_a_local_cluster_match_the_local_engine(tmp_path):
     assert [e["state"] for e in index["runs"]] == ["complete"] * 40
 
 
-def test_a_killed_worker_costs_nothing(tmp_path):
+def test_a_killed_worker_costs_nothing(tmp_path, tmp_path_factory):
     from foilmap.run.cluster import DaskBackend
 
     st = study(6, 2500)
-    drive_study(st, tmp_path / "ref", workers=2)
+    _, ref = reference_folder(tmp_path_factory, st.text)
     out = tmp_path / "dask"
     killed = {}
     original = DaskBackend.wait
@@ -84,15 +84,13 @@ def test_a_killed_worker_costs_nothing(tmp_path):
         DaskBackend.wait = original
     assert killed, "no run was caught in flight"
     assert all(s["state"] == "complete" for s in summ) and len(summ) == 6
-    all_equal(tmp_path / "ref", out, st)  # nothing duplicated, nothing lost
+    all_equal(ref, out, st)  # nothing duplicated, nothing lost
     assert read_run(out / "runs" / f"{killed['run']}.h5").resumes >= 1  # resumed, not restarted
 
 
-def test_a_killed_driver_resumes(tmp_path):
+def test_a_killed_driver_resumes(tmp_path, tmp_path_factory):
     st = study(4, 3000)
-    drive_study(st, tmp_path / "ref", workers=2)
-    sf = tmp_path / "s.toml"
-    sf.write_text(st.text)
+    sf, ref = reference_folder(tmp_path_factory, st.text)
     out = tmp_path / "cut"
     proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
                              str(out), "--engine", "dask", "--workers", "2"],
@@ -123,7 +121,7 @@ def test_a_killed_driver_resumes(tmp_path):
     r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out), "--engine",
                         "dask", "--workers", "2"], capture_output=True, text=True, timeout=300)
     assert r.returncode == 0, r.stderr
-    all_equal(tmp_path / "ref", out, st)
+    all_equal(ref, out, st)
     # the runs cut after 20 generations went on from their checkpoints, not from scratch
     resumed = [read_run(out / "runs" / n).resumes for n in unfinished
                if cut[n].generations >= 20]
@@ -165,7 +163,7 @@ def test_a_run_that_keeps_failing_is_recorded_and_the_rest_finish(tmp_path):
         assert all(index[f"p.s{i}"]["state"] == "complete" for i in (1, 3, 4))
 
 
-def test_a_killed_driver_alone_frees_its_runs_and_resumes_at_once(tmp_path):
+def test_a_killed_driver_alone_frees_its_runs_and_resumes_at_once(tmp_path, tmp_path_factory):
     # SIGKILL to the driver alone: the LocalCluster's worker processes are re-parented, their
     # tasks commit and stop, the runs' locks are free within a second or two; a resume started
     # at once finishes with the same bits
@@ -174,9 +172,7 @@ def test_a_killed_driver_alone_frees_its_runs_and_resumes_at_once(tmp_path):
     from foilmap.store.lock import Lock
 
     st = study(2, 3000)
-    drive_study(st, tmp_path / "ref", workers=2)
-    sf = tmp_path / "s.toml"
-    sf.write_text(st.text)
+    sf, ref = reference_folder(tmp_path_factory, st.text)
     out = tmp_path / "cut"
     proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
                              str(out), "--engine", "dask", "--workers", "2"],
@@ -192,7 +188,7 @@ def test_a_killed_driver_alone_frees_its_runs_and_resumes_at_once(tmp_path):
                         "dask", "--workers", "2"], capture_output=True, text=True, timeout=300)
     assert r.returncode == 0, r.stderr
     assert "restarts from its seed" not in r.stderr
-    all_equal(tmp_path / "ref", out, st)
+    all_equal(ref, out, st)
     for run in st.runs():
         with Lock(out / "runs" / f"{run.run_id}.lock", "t").acquire(wait=0):
             pass

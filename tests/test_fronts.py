@@ -164,16 +164,12 @@ def test_multi_objective_runs_repeat_bit_for_bit(tmp_path):
 
 
 @pytest.mark.slow
-def test_multi_objective_run_killed_and_resumed(tmp_path):
+def test_multi_objective_run_killed_and_resumed(tmp_path, tmp_path_factory):
+    from conftest import reference_folder
     from test_search import logs_equal, wait_for_generations
 
     text = MO_STUDY.replace("seeds = [1, 2]", "seeds = [1]").replace("900", "12000")
-    sf = tmp_path / "s.toml"
-    sf.write_text(text)
-    ref = tmp_path / "ref"
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out", str(ref),
-                        "--workers", "1"], capture_output=True, text=True, timeout=300)
-    assert r.returncode == 0, r.stderr
+    sf, ref = reference_folder(tmp_path_factory, text)
     out = tmp_path / "cut"
     proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
                              str(out), "--workers", "1"], stdout=subprocess.DEVNULL,

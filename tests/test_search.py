@@ -248,13 +248,10 @@ def wait_for_generations(log: Path, n: int, proc, timeout=90.0) -> int:
 
 @pytest.mark.slow
 @pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGTERM])
-def test_killed_run_resumes_to_identical_log(tmp_path, sig):
-    study_file = tmp_path / "s.toml"
-    study_file.write_text(SLOW)
-    ref = tmp_path / "ref"
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out",
-                        str(ref), "--workers", "1"], capture_output=True, text=True, timeout=300)
-    assert r.returncode == 0, r.stderr
+def test_killed_run_resumes_to_identical_log(tmp_path, tmp_path_factory, sig):
+    from conftest import reference_folder
+
+    study_file, ref = reference_folder(tmp_path_factory, SLOW)
     out = tmp_path / "cut"
     proc = start_run(study_file, out)
     log = out / "runs" / "p.s3.h5"
@@ -388,7 +385,7 @@ def wait_for_own_generations(log: Path, n: int, proc, timeout=120.0) -> None:
 
 
 @pytest.mark.slow
-def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
+def test_interrupts_commit_every_run_and_resume_identically(tmp_path, tmp_path_factory):
     # Ctrl-C (SIGINT to the process group) and SIGTERM, alternately, ten times: every time the
     # driver exits 130 or 143 within seconds with one line, leaves no process behind and marks
     # the unfinished runs interrupted.  The interrupts come one after another on one folder
@@ -396,12 +393,9 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path):
     # continues it, each once that driver has committed generations of its own); the last
     # resume finishes the study bit-identically, with no run restarted from its seed (each
     # interrupt committed consistently).  One study's work in all, not ten.
-    study_file = tmp_path / "s.toml"
-    study_file.write_text(INTERRUPTED)
-    ref = tmp_path / "ref"
-    r = subprocess.run([sys.executable, "-m", "foilmap.cli", "run", str(study_file), "--out",
-                        str(ref), "--workers", "2"], capture_output=True, text=True, timeout=600)
-    assert r.returncode == 0, r.stderr
+    from conftest import reference_folder
+
+    study_file, ref = reference_folder(tmp_path_factory, INTERRUPTED)
     out = tmp_path / "cut"
     log = out / "runs" / "p.s3.h5"
     for k in range(10):
