@@ -31,6 +31,32 @@ coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
 """
 
 
+def pytest_collection_modifyitems(config, items):
+    """Under pytest-xdist, start the long tests first, spread over the workers.
+
+    xdist's work-stealing hands each worker a contiguous share of the collection and later moves
+    tests from the end of one worker's queue to an idle one.  Each share here begins with its
+    part of the slow-marked tests (taken in turn), so that no long test starts near the end
+    while the other workers run out of work; the short tests after them balance the finish."""
+    n = int(os.environ.get("PYTEST_XDIST_WORKER_COUNT", "0") or 0)
+    slow = [it for it in items if it.get_closest_marker("slow")]
+    if n < 2 or not slow:
+        return
+    rest = [it for it in items if not it.get_closest_marker("slow")]
+    sizes, left = [], len(items)
+    for k in range(n):  # the first hand-out's sizes, as xdist cuts them
+        sizes.append(left // (n - k))
+        left -= sizes[-1]
+    shares = [slow[k::n] for k in range(n)]
+    at = 0
+    for k in range(n):
+        need = max(0, sizes[k] - len(shares[k]))
+        shares[k] += rest[at:at + need]
+        at += need
+    shares[-1] += rest[at:]
+    items[:] = [it for share in shares for it in share]
+
+
 def reference_folder(tmp_path_factory, text: str) -> tuple[Path, Path]:
     """``(study file, folder)`` of the uninterrupted study ``text``, run once per test session
     and shared by the session's pytest workers (a file lock: the first to come runs it, the
