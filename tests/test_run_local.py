@@ -79,6 +79,7 @@ def test_the_driver_exits_after_its_workers_ten_times(tmp_path, ref):
     interrupt_loop(10, sf, ref_dir, tmp_path / "cut", seed=2)
 
 
+@pytest.mark.slow  # (the quick subset kills a driver in test_faults.py)
 def test_workers_stop_within_a_second_of_a_killed_driver(tmp_path, ref):
     # SIGKILL to the driver alone (the out-of-memory killer, kill -9): its workers see it,
     # commit and leave; the runs' locks are free again and resume continues them
