@@ -67,8 +67,9 @@ def generations(log: Path) -> int:
 
     try:
         # a log truncated on purpose first: HDF5's SWMR reader retries the missing metadata
-        # for minutes (what the store's reader checks too)
-        _check_length(log)
+        # for minutes (what the store's reader checks too); a poll does not wait for a flush
+        # to land, it looks again
+        _check_length(log, settle=False)
         with h5py.File(log, "r", libver="latest", swmr=True, locking=False) as f:
             return int(f["gen/evaluations"].shape[0])
     except Exception:  # noqa: BLE001 - missing, being written, or damaged on purpose
