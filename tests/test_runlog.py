@@ -212,3 +212,33 @@ def test_a_log_that_a_writer_lengthens_meanwhile_is_read(tmp_path, monkeypatch):
     p.write_bytes(whole[:-200])
     with pytest.raises(OSError, match=r"is truncated \(\d+ of \d+ bytes\)"):
         runlog._check_length(p, settle=False)
+
+
+def test_the_key_lives_in_the_configuration_folder_the_system_names(tmp_path, monkeypatch):
+    # FOILMAP_CONFIG_DIR first, then XDG_CONFIG_HOME, then ~/.config (the XDG base directory
+    # specification's default)
+    monkeypatch.setenv("FOILMAP_CONFIG_DIR", str(tmp_path / "own"))
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(tmp_path / "xdg"))
+    assert key_path() == tmp_path / "own" / runlog.KEY_NAME
+    monkeypatch.delenv("FOILMAP_CONFIG_DIR")
+    assert key_path() == tmp_path / "xdg" / "foilmap" / runlog.KEY_NAME
+    monkeypatch.delenv("XDG_CONFIG_HOME")
+    assert key_path() == tmp_path / "home" / ".config" / "foilmap" / runlog.KEY_NAME
+
+
+def test_a_generations_digest_covers_its_own_archive_rows_and_no_others():
+    evals = {k: np.arange(6.0) for k in runlog.EVAL_FIELDS}
+    gen = {k: np.arange(3.0) for k in runlog.GEN_FIELDS}
+    gen["evaluations"] = np.array([2, 4, 6])
+    gen["front_offset"], gen["front_size"] = np.array([0, 1, 3]), np.array([1, 2, 2])
+    front = np.arange(5)
+    before = [generation_digest(evals, gen, front, g) for g in (1, 2, 3)]
+    changed = front.copy()
+    changed[2] = 99  # a row of generation 2's archive (rows 1 and 2)
+    after = [generation_digest(evals, gen, changed, g) for g in (1, 2, 3)]
+    assert after[0] == before[0] and after[2] == before[2] and after[1] != before[1]
+    # and its own evaluation rows (rows 2 and 3), not its neighbours'
+    evals2 = {k: v.copy() for k, v in evals.items()}
+    evals2[runlog.EVAL_FIELDS[0]][3] = -1.0
+    again = [generation_digest(evals2, gen, front, g) for g in (1, 2, 3)]
+    assert again[0] == before[0] and again[2] == before[2] and again[1] != before[1]
