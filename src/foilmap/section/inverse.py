@@ -157,7 +157,8 @@ def lighthill_contour(c: np.ndarray, a: float, intervals: int) -> np.ndarray:
     starts = h * np.arange(intervals)
     nodes = starts[:, None] + h * s[None, :]
     ser = np.stack([_series_on_grid(c, intervals, h * sk) for sk in s], axis=1)
-    vals = _integrand(c, a, nodes[1:-1], ser[1:-1]) @ w * h
+    # the weighted sums without a BLAS product (whose threads cost more than the arithmetic)
+    vals = np.einsum("ij,j->i", _integrand(c, a, nodes[1:-1], ser[1:-1]), w) * h
     # end intervals, graded towards the trailing edge
     sp = s**_GRADE
     jac = h * _GRADE * s ** (_GRADE - 1)
@@ -180,34 +181,75 @@ def lighthill_speed(c: np.ndarray, a: float, alpha: float, phi: np.ndarray,
 
 
 class _PhiGrid:
-    """The fixed circle-plane grid of one inverse solve, for its many steps: the series matrix
-    e^{−inφ}, the closure basis (cos nφ, sin nφ, n ≥ 2) and the last factorised normal
-    equations of :func:`_closed_series`, reused while the point weights stay the same (they
-    change only when the shape moves a point across a target's end or a speed threshold)."""
+    """The fixed circle-plane grid of one inverse solve, for its many steps: the uniform grid
+    φⱼ = 2πj/M + φ₀ and the last factorised normal equations of :func:`_closed_series` for the
+    closure basis B (cos nφ, sin nφ, n ≥ 2), reused while the point weights stay the same (they
+    change only when the shape moves a point across a target's end or a speed threshold).
+
+    The sums over the grid of each step, Σ Cₙ e^{−inφⱼ}, Σⱼ wⱼ yⱼ (cos nφⱼ, sin nφⱼ) and the
+    Gram matrix Bᵀ W B, come from FFTs of length M instead of dense products over the grid: no
+    BLAS product of the grid's size (whose threads, on a busy machine, cost each step far more
+    than its arithmetic)."""
+
+    #: factorised normal equations kept, one per pattern of weights (each (2N)² floats)
+    FACTORS_KEPT = 32
 
     def __init__(self, phi: np.ndarray, terms: int):
+        m = phi.size
+        offset = float(phi[0])
+        if not np.allclose(phi, 2.0 * np.pi * np.arange(m) / m + offset, rtol=0, atol=1e-12):
+            raise ValueError("the grid is not uniform")
         self.phi = phi
         self.terms = terms
-        self.exp = np.exp(-1j * np.multiply.outer(phi, np.arange(terms)))
+        # Σⱼ vⱼ e^{−ikφⱼ} = e^{−ikφ₀} FFT(v)_{k mod M}: the phase and the FFT's index of each
+        # harmonic k < 2 terms (a harmonic at or past M is its alias on the grid)
+        k = np.arange(2 * terms)
+        self.shift = np.exp(-1j * k * offset)
+        self.index = k % m
         n = np.arange(2, terms)
-        self.basis = np.concatenate([np.cos(np.multiply.outer(phi, n)),
-                                     np.sin(np.multiply.outer(phi, n))], axis=1)
-        self._weight = None
-        self._factor = None
+        # the harmonics k = n ∓ n' of the products of two basis functions, for the Gram matrix
+        self._dif = np.abs(np.subtract.outer(n, n))
+        self._sum = np.add.outer(n, n)
+        self._sgn = np.sign(np.subtract.outer(n, n).T)  # of n' − n
+        self._factors = {}  # weights (bytes) → LU factors, the latest last
 
     def series(self, c: np.ndarray) -> np.ndarray:
-        """Σ Cₙ e^{−inφ} on the grid (as :func:`_series`, bit for bit)."""
-        return self.exp[:, : c.size] @ c
+        """Σ Cₙ e^{−inφ} on the grid (as :func:`_series`, to rounding), by one FFT."""
+        spec = np.zeros(self.phi.size, dtype=complex)
+        np.add.at(spec, self.index[: c.size], c * self.shift[: c.size])
+        return np.fft.fft(spec)
+
+    def project(self, v: np.ndarray) -> np.ndarray:
+        """Bᵀ v for the closure basis B (cos nφ, then sin nφ, n = 2 … terms − 1), by one FFT:
+        Σⱼ vⱼ e^{−inφⱼ} = Σ vⱼ cos nφⱼ − i Σ vⱼ sin nφⱼ."""
+        g = np.fft.fft(v)[self.index[2 : self.terms]] * self.shift[2 : self.terms]
+        return np.concatenate([g.real, -g.imag])
+
+    def gram(self, weight: np.ndarray) -> np.ndarray:
+        """Bᵀ W B from the harmonics of the weights, Σⱼ wⱼ e^{−ikφⱼ} = C(k) − i S(k) (one FFT),
+        by cos a cos b = ½ (cos(a − b) + cos(a + b)) and its kin."""
+        g = np.fft.fft(weight)[self.index] * self.shift
+        cos_k, sin_k = g.real, -g.imag
+        d, t = self._dif, self._sum
+        cc = 0.5 * (cos_k[d] + cos_k[t])
+        ss = 0.5 * (cos_k[d] - cos_k[t])
+        cs = 0.5 * (sin_k[t] + self._sgn * sin_k[d])  # Σ w cos nφ sin n'φ
+        return np.block([[cc, cs], [cs.T, ss]])
 
     def normal_factor(self, weight: np.ndarray, pen: np.ndarray):
-        """LU factors of Bᵀ W B + diag(pen) for these weights (computed once per weights)."""
+        """LU factors of Bᵀ W B + diag(pen) for these weights, computed once per weights: the
+        weights of a solve alternate among a few patterns (a point near a threshold moves back
+        and forth across it), so the last ``FACTORS_KEPT`` patterns' factors are kept."""
         from scipy.linalg import lu_factor
 
-        if self._weight is None or not np.array_equal(weight, self._weight):
-            gram = (self.basis * weight[:, None]).T @ self.basis + np.diag(pen)
-            self._factor = lu_factor(gram)
-            self._weight = weight.copy()
-        return self._factor
+        key = weight.tobytes()
+        factor = self._factors.pop(key, None)
+        if factor is None:
+            factor = lu_factor(self.gram(weight) + np.diag(pen))
+            if len(self._factors) >= self.FACTORS_KEPT:
+                del self._factors[next(iter(self._factors))]  # the least recently used
+        self._factors[key] = factor
+        return factor
 
 
 def _closed_series(phi, p, weight, a, terms, smoothing: float | None = None,
@@ -225,10 +267,10 @@ def _closed_series(phi, p, weight, a, terms, smoothing: float | None = None,
     m = phi.size
     smoothing = SMOOTHING if smoothing is None else smoothing
     pen = smoothing * m * np.concatenate([(n / 10.0) ** 4, (n / 10.0) ** 4])
-    if grid is not None:  # the steps of one solve: the basis and its factors kept
+    if grid is not None:  # the steps of one solve: by FFTs, the factors kept
         from scipy.linalg import lu_solve
 
-        sol = lu_solve(grid.normal_factor(weight, pen), (grid.basis * weight[:, None]).T @ y)
+        sol = lu_solve(grid.normal_factor(weight, pen), grid.project(weight * y))
     else:
         basis = np.concatenate([np.cos(np.multiply.outer(phi, n)),
                                 np.sin(np.multiply.outer(phi, n))], axis=1)
@@ -339,7 +381,10 @@ def inverse_design(target: Target, *, cl: float | None = None, alpha: float | No
         raise ValueError("give exactly one of cl and alpha")
     a = 1.0 - te_angle / np.pi
     phi = 2.0 * np.pi * (np.arange(grid) + 0.5) / grid
-    surfaces = {side: (*target.surface(side), target.reaches_te(side)) for side in (True, False)}
+    surfaces = {}
+    for side in (True, False):  # each surface's (x, u), whether it reaches the TE, its reader
+        xs, us = target.surface(side)
+        surfaces[side] = (xs, us, target.reaches_te(side), _surface_reader(xs, us))
     from foilmap.section.conformal import SectionSet, offset_circle_coefficients
 
     start = section_coefficients(SectionSet.single(offset_circle_coefficients(-0.1, 24),
@@ -469,11 +514,11 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None, grid=
     covered = np.zeros(m, dtype=bool)
     spans = np.zeros(m, dtype=bool)  # the target's span: read, or its unread trailing-edge zone
     for side in (True, False):
-        xs, qs, to_te = surfaces[side]
+        xs, _, to_te, read = surfaces[side]
         if xs.size < 2:
             continue
         on = (upper == side) & (x >= xs[0]) & (x <= xs[-1])
-        q_t[on] = _interp_surface(xs, qs, x[on])
+        q_t[on] = read(x[on])
         covered |= on
         spans |= ((upper == side) & (x >= (-1.0 if xs[0] < 1e-3 else xs[0]))
                   & (x <= (2.0 if to_te else xs[-1])))
@@ -514,16 +559,18 @@ def _lighthill_step(c, a, cl, alpha, phi, surfaces, terms, te_weight=None, grid=
                    "closure_dlnq": dp, "te_departure": te_dev}
 
 
-def _interp_surface(xs: np.ndarray, qs: np.ndarray, x: np.ndarray) -> np.ndarray:
-    """A surface's target at stations ``x``: a cubic spline in √x (smooth through the nose,
-    where x grows as the square of the arc length)."""
+def _surface_reader(xs: np.ndarray, qs: np.ndarray):
+    """A surface's target as a function of the stations x: a cubic spline in √x (smooth
+    through the nose, where x grows as the square of the arc length), built once for the many
+    steps of a solve."""
     from scipy.interpolate import CubicSpline
 
     if xs.size < 4:
-        return np.abs(np.interp(x, xs, qs))
+        return lambda x: np.abs(np.interp(x, xs, qs))
     u = np.sqrt(np.maximum(xs, 0.0))
     keep = np.concatenate([[True], np.diff(u) > 1e-12])
-    return np.abs(CubicSpline(u[keep], qs[keep])(np.sqrt(np.maximum(x, 0.0))))
+    spline = CubicSpline(u[keep], qs[keep])
+    return lambda x: np.abs(spline(np.sqrt(np.maximum(x, 0.0))))
 
 
 def section_coefficients(sections, terms: int, samples: int = 2048) -> np.ndarray:
