@@ -86,10 +86,39 @@ def reference_folder(tmp_path_factory, text: str) -> tuple[Path, Path]:
     return here / "s.toml", here / "ref"
 
 
-def cli(*args, cwd=None, timeout=300):
-    """Run the foilmap command in a subprocess, as a user would."""
-    return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
-                          capture_output=True, text=True, cwd=cwd, timeout=timeout)
+def cli(*args, cwd=None, timeout=300, real: bool = False):
+    """Run the foilmap command: its exit code and what it printed on each stream.
+
+    By default through the command's own entry point ``foilmap.cli.main`` in this process, with
+    its standard streams captured: the same code from the parsing of the arguments to the exit
+    code, without the second of interpreter start-up and kernel loading a new process costs
+    (most of the quick subset's time, once).  ``real`` runs it in a subprocess, as a user's
+    shell does: for what only a process shows (what it imports, signals, its environment)."""
+    if real:
+        return subprocess.run([sys.executable, "-m", "foilmap.cli", *map(str, args)],
+                              capture_output=True, text=True, cwd=cwd, timeout=timeout)
+    import contextlib
+    import io
+    import signal
+
+    from foilmap.cli import main
+
+    out, err = io.StringIO(), io.StringIO()
+    here = os.getcwd()
+    handler = signal.getsignal(signal.SIGTERM)
+    try:
+        if cwd is not None:
+            os.chdir(cwd)
+        with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+            try:
+                code = main([str(a) for a in args])
+            except SystemExit as exc:  # argparse's usage errors and --help
+                code = exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+    finally:
+        os.chdir(here)
+        signal.signal(signal.SIGTERM, handler)
+    return subprocess.CompletedProcess(["foilmap", *map(str, args)], code or 0,
+                                       out.getvalue(), err.getvalue())
 
 
 def small_study(name: str, seeds, evals: int, objectives: str = "peak_suction = 1.0",

@@ -7,9 +7,16 @@ import json
 
 import numpy as np
 import pytest
-from conftest import SECTION_TEXT, cli
+from conftest import SECTION_TEXT
+from conftest import cli as run_command
 
 from foilmap import analyse, load_section
+
+
+def cli(*args, **kw):
+    """The command in a real subprocess: this file is the command line end to end (elsewhere
+    the tests call the command's entry point in their own process)."""
+    return run_command(*args, real=True, **kw)
 
 JSON_KEYS = {"cl", "alpha_deg", "alpha_zero_lift_deg", "cm_quarter_chord", "cp_min", "cp_min_x",
              "thickness", "thickness_x", "camber", "camber_x", "le_radius", "te_angle_deg",
