@@ -31,6 +31,17 @@ coefficients = [[-0.075, 0.038], [0.004, -0.003], [-0.001, 0.0008]]
 """
 
 
+def pytest_configure(config):
+    """Compile the kernels once, in the controlling process, before any worker starts: on a
+    fresh install every process that met them first would compile them at the same time
+    (half a minute of processor each; a process started later loads them from numba's cache)."""
+    if hasattr(config, "workerinput"):  # a pytest-xdist worker: the controller did it
+        return
+    from foilmap.section import _compiled
+
+    _compiled.warm_cache()
+
+
 def pytest_collection_modifyitems(config, items):
     """Under pytest-xdist, start the long tests first, spread over the workers.
 

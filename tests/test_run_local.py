@@ -69,14 +69,10 @@ def interrupt_loop(tries: int, sf, ref, out, seed: int) -> None:
 
 
 def test_the_driver_exits_after_its_workers(tmp_path, ref):
+    # the quick form (SIGINT, then SIGTERM, to the driver alone); the slow loop of ten, half of
+    # them to the driver alone, is test_search.py's interrupt series
     sf, ref_dir = ref
     interrupt_loop(2, sf, ref_dir, tmp_path / "cut", seed=1)
-
-
-@pytest.mark.slow
-def test_the_driver_exits_after_its_workers_ten_times(tmp_path, ref):
-    sf, ref_dir = ref
-    interrupt_loop(10, sf, ref_dir, tmp_path / "cut", seed=2)
 
 
 @pytest.mark.slow  # (the quick subset kills a driver in test_faults.py)

@@ -361,10 +361,11 @@ max_evaluations = 120
     assert log.best() is not None
 
 
-# about 600 generations a run: ten interrupts, each after a commit of the driver it stops, leave
-# p.s3 unfinished on a loaded machine too (a driver commits once a second)
-INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 6000").replace(
-    "seeds = [3, 4]", "seeds = [3, 4, 5]")
+# 2,400 generations a run, about 16 s of search on an idle machine: each of ten interrupts
+# comes after a commit of the driver it stops (a driver commits once a second), so each costs
+# the run a second or more, and p.s3 must outlast ten of them (600 generations, the size
+# before, finished at the sixth interrupt on an idle machine)
+INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 24000")
 
 
 def wait_for_own_generations(log: Path, n: int, proc, timeout=120.0) -> None:
@@ -386,46 +387,64 @@ def wait_for_own_generations(log: Path, n: int, proc, timeout=120.0) -> None:
 
 @pytest.mark.slow
 def test_interrupts_commit_every_run_and_resume_identically(tmp_path, tmp_path_factory):
-    # Ctrl-C (SIGINT to the process group) and SIGTERM, alternately, ten times: every time the
-    # driver exits 130 or 143 within seconds with one line, leaves no process behind and marks
-    # the unfinished runs interrupted.  The interrupts come one after another on one folder
-    # (the first to `run` after 10 generations of p.s3, the next nine to the `resume` that
+    # Ctrl-C (SIGINT) and SIGTERM, ten times in all: to the process group, as a terminal's
+    # Ctrl-C sends it, and to the driver alone, as a batch scheduler or a kill does (each
+    # signal both ways, in turn).  Every time the driver exits 130 or 143 within seconds with one
+    # line; the moment it has gone so have its workers and the runs' locks are free (a resume
+    # typed at once never meets one); no process of the group is left behind; the unfinished
+    # runs are marked interrupted.  The interrupts come one after another on one folder (the
+    # first to `run` after 10 generations of p.s3, the next nine to the `resume` that
     # continues it, each once that driver has committed generations of its own); the last
     # resume finishes the study bit-identically, with no run restarted from its seed (each
     # interrupt committed consistently).  One study's work in all, not ten.
     from conftest import reference_folder
+    from faultkit import alive, workers_of
+
+    from foilmap.store.lock import Lock
 
     study_file, ref = reference_folder(tmp_path_factory, INTERRUPTED)
     out = tmp_path / "cut"
     log = out / "runs" / "p.s3.h5"
+    runs = ("p.s3", "p.s4")
     for k in range(10):
         sig = signal.SIGINT if k % 2 == 0 else signal.SIGTERM
+        group = k % 4 < 2  # group: SIGINT, SIGTERM; driver alone: SIGINT, SIGTERM; ...
         args = ["run", str(study_file), "--out", str(out)] if k == 0 else ["resume", str(out)]
         base = read_run(log).generations if k else 9
         proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", *args, "--workers", "2"],
                                 stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
                                 start_new_session=True)
         wait_for_own_generations(log, base + 1, proc)
+        workers = workers_of(proc.pid)
         t0 = time.time()
-        os.killpg(proc.pid, sig)
+        if group:
+            os.killpg(proc.pid, sig)
+        else:
+            os.kill(proc.pid, sig)
         _, err = proc.communicate(timeout=60)
+        # the moment the driver has gone, so have its workers, and the runs are free
+        still = [w for w in workers if alive(w)]
+        assert not still, f"workers outlived their driver: {still}"
+        for r in runs:
+            lock = Lock(out / "runs" / f"{r}.lock", "test")
+            assert lock.try_acquire(), f"run {r} still held after its driver exited"
+            lock.release()
         assert time.time() - t0 < 25, "the driver took too long to stop"
         assert proc.returncode == (130 if sig == signal.SIGINT else 143), err
         lines = [line for line in err.splitlines() if line.startswith("foilmap:")]
         assert len(lines) == 1 and "resume" in lines[0] and "Traceback" not in err, err
         assert "restarts from its seed" not in err, err
-        # no process of the group is left behind for long: the workers are gone when the
-        # driver exits (tests/test_run_local.py checks their run locks are free then), and
-        # multiprocessing's resource tracker leaves once it has read the driver's end
+        # no process of the group is left behind for long: multiprocessing's resource tracker
+        # leaves once it has read the driver's end
         deadline = time.time() + 5.0
         while True:
             left = subprocess.run(["ps", "-o", "pid=,stat=", "-g", str(proc.pid)],
                                   capture_output=True, text=True).stdout.split("\n")
-            alive = [row for row in left if row.strip() and not row.split()[1].startswith("Z")]
-            if not alive or time.time() > deadline:
+            alive_rows = [row for row in left if row.strip() and not row.split()[1].startswith("Z")]
+            if not alive_rows or time.time() > deadline:
                 break
             time.sleep(0.1)
-        assert not alive, f"processes left behind: {alive}"  # exited children may await reaping
+        assert not alive_rows, f"processes left behind: {alive_rows}"  # (zombies await reaping)
         index = json.loads((out / "index.json").read_text())
         states = {row["run"]: row["state"] for row in index["runs"]}
         assert "interrupted" in states.values(), states
@@ -436,7 +455,7 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path, tmp_path_f
                        capture_output=True, text=True, timeout=600)
     assert r.returncode == 0, r.stderr
     assert "restarts from its seed" not in r.stderr, r.stderr
-    for run_id in ("p.s3", "p.s4", "p.s5"):
+    for run_id in runs:
         logs_equal(ref / "runs" / f"{run_id}.h5", out / "runs" / f"{run_id}.h5")
         assert read_run(out / "runs" / f"{run_id}.h5").state_name == "complete"
     assert read_run(log).resumes == 10  # p.s3 was cut by every interrupt, resumed each time
