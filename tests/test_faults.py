@@ -154,13 +154,14 @@ def kill_loop(kind: str, tries: int, sf: Path, ref: Path, out: Path, seed: int) 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("kind", ["driver", "worker", "both"])
-def test_ten_random_kills_then_resume_give_the_same_bits(tmp_path, loop_ref, kind):
-    # ten tries a kind (twenty before: the loop's cost is mostly its start-ups, and ten random
-    # moments a kind, three kinds, cover the start-up, the search and the commit)
+def test_random_kills_then_resume_give_the_same_bits(tmp_path, loop_ref, kind):
+    # eight tries a kind (twenty at first, then ten: the loop's cost is its start-ups, and
+    # eight random moments a kind, three kinds, still cover the start-up, the search and the
+    # commit)
     sf, ref = loop_ref
-    fig = kill_loop(kind, 10, sf, ref, tmp_path / "cut", seed={"driver": 1, "worker": 2,
-                                                                "both": 3}[kind])
-    assert fig["landed"] >= 5, fig  # most tries really killed a running study
+    fig = kill_loop(kind, 8, sf, ref, tmp_path / "cut", seed={"driver": 1, "worker": 2,
+                                                               "both": 3}[kind])
+    assert fig["landed"] >= 4, fig  # most tries really killed a running study
     worst = max(fig["orphan_exit_s"], default=float("nan"))
     print(f"\nkill loop ({kind}): {fig['tries']} tries, {fig['landed']} kills landed "
           f"({fig['before_progress']} during start-up), {fig['finished_first']} ended first; "
@@ -301,8 +302,9 @@ def test_checkpoint_and_log_that_disagree_roll_back_and_say_so(tmp_path, monkeyp
 
 
 @pytest.mark.slow
-def test_ten_truncations_between_kills_then_resume_give_the_same_bits(tmp_path, loop_ref):
-    # ten tries (twenty before; each try is a driver, a kill, a cut and two status commands)
+def test_truncations_between_kills_then_resume_give_the_same_bits(tmp_path, loop_ref):
+    # eight tries (twenty at first, then ten; each try is a driver, a kill, a cut and two
+    # readings of the status)
     sf, ref = loop_ref
     out = tmp_path / "cut"
     rng = random.Random(7)
@@ -315,7 +317,7 @@ def test_ten_truncations_between_kills_then_resume_give_the_same_bits(tmp_path, 
         lines = "\n".join(damage_lines(StudyFolder(out).status()))
         return {r for r in RUNS if f"damage: run {r}:" in lines}
 
-    for k in range(10):
+    for k in range(8):
         args = (["resume", out] if prepared(out) else ["run", sf, "--out", out]) + ["--workers",
                                                                                    "2"]
         proc = start(args)

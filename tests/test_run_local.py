@@ -69,8 +69,8 @@ def interrupt_loop(tries: int, sf, ref, out, seed: int) -> None:
 
 
 def test_the_driver_exits_after_its_workers(tmp_path, ref):
-    # the quick form (SIGINT, then SIGTERM, to the driver alone); the slow loop of ten, half of
-    # them to the driver alone, is test_search.py's interrupt series
+    # the quick form (SIGINT, then SIGTERM, to the driver alone); the slow loop of eight, half
+    # of them to the driver alone, is test_search.py's interrupt series
     sf, ref_dir = ref
     interrupt_loop(2, sf, ref_dir, tmp_path / "cut", seed=1)
 
