@@ -361,11 +361,9 @@ max_evaluations = 120
     assert log.best() is not None
 
 
-# 2,000 generations a run, about 13 s of search on an idle machine: each of eight interrupts
-# comes after a commit of the driver it stops (a driver commits once a second), so each costs
-# the run a second or more, and p.s3 must outlast eight of them (600 generations, the size
-# before, finished at the sixth interrupt on an idle machine)
-INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 20000")
+# 600 generations a run: each of eight interrupts comes after the first commit of the driver it
+# stops (a run commits its first generation at once), so each costs the run a few generations
+INTERRUPTED = STUDY.replace("max_evaluations = 400", "max_evaluations = 6000")
 
 
 def wait_for_own_generations(log: Path, n: int, proc, timeout=120.0) -> None:

@@ -1,8 +1,9 @@
 """One run: a search writing its own log and checkpoint, with retries; what a worker runs.
 
 Engines (:mod:`foilmap.run.local`, :mod:`foilmap.run.cluster`) hand :func:`worker` the validated
-study and a run id; the run commits its log rows, then its checkpoint, at most every
-:data:`COMMIT_INTERVAL` seconds, so a killed run resumes bit-identically from its last commit.
+study and a run id; the run commits its log rows, then its checkpoint, after its first
+generation and then at most every :data:`COMMIT_INTERVAL` seconds, so a killed run resumes
+bit-identically from its last commit.
 One process writes a run at a time: :func:`execute_run` holds the run's lock
 (``DIR/runs/ID.lock``, :mod:`foilmap.store.lock`) while it writes, and before continuing a run
 it checks that the checkpoint and the log agree (:func:`recover`).
@@ -200,7 +201,9 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
 
     with writer:
         pending = []
-        last = time.monotonic()
+        # the first generation is committed at once (status shows a resumed run moving, and a
+        # run killed in its first second keeps a generation), then at least once a second
+        last = -float("inf")
         while not is_finished(state):
             gen, _ = step(state, problem, run.search)
             pending.append(gen)
