@@ -49,6 +49,19 @@ def alive(pid: int) -> bool:
         return False
 
 
+def check_driver_gone(workers, out: Path, run_ids) -> None:
+    """What must hold the moment a driver has exited: its workers have gone too, and the
+    runs' locks are free (a resume typed at once never meets one)."""
+    from foilmap.store.lock import Lock
+
+    still = [w for w in workers if alive(w)]
+    assert not still, f"workers outlived their driver: {still}"
+    for r in run_ids:
+        lock = Lock(out / "runs" / f"{r}.lock", "test")
+        assert lock.try_acquire(), f"run {r} still held after its driver exited"
+        lock.release()
+
+
 def wait_gone(pids, timeout: float) -> float:
     """Seconds until every process of ``pids`` has exited (or ``timeout``)."""
     t0 = time.monotonic()

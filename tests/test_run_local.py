@@ -13,7 +13,7 @@ import time
 
 import pytest
 from conftest import reference_folder, small_study
-from faultkit import alive, start, wait_gone, wait_running, workers_of
+from faultkit import alive, check_driver_gone, start, wait_gone, wait_running, workers_of
 from test_search import logs_equal
 
 from foilmap.store.lock import Lock
@@ -52,13 +52,7 @@ def interrupt_loop(tries: int, sf, ref, out, seed: int) -> None:
             continue
         os.kill(proc.pid, sig)  # the driver alone, as a scheduler's SIGTERM or a kill does
         _, err = proc.communicate(timeout=60)
-        # the moment the driver has gone, so have its workers, and the runs are free
-        still = [w for w in ws if alive(w)]
-        assert not still, f"workers outlived their driver: {still}"
-        for r in RUNS:
-            lock = Lock(out / "runs" / f"{r}.lock", "test")
-            assert lock.try_acquire(), f"run {r} still held after its driver exited"
-            lock.release()
+        check_driver_gone(ws, out, RUNS)
         assert proc.returncode in (0, 130, 143), err
         assert "Traceback" not in err, err
     r = subprocess.run([sys.executable, "-m", "foilmap.cli", "resume", str(out), "--workers", "2"],

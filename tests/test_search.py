@@ -396,9 +396,7 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path, tmp_path_f
     # resume finishes the study bit-identically, with no run restarted from its seed (each
     # interrupt committed consistently).  One study's work in all, not eight.
     from conftest import reference_folder
-    from faultkit import alive, workers_of
-
-    from foilmap.store.lock import Lock
+    from faultkit import check_driver_gone, workers_of
 
     study_file, ref = reference_folder(tmp_path_factory, INTERRUPTED)
     out = tmp_path / "cut"
@@ -420,13 +418,7 @@ def test_interrupts_commit_every_run_and_resume_identically(tmp_path, tmp_path_f
         else:
             os.kill(proc.pid, sig)
         _, err = proc.communicate(timeout=60)
-        # the moment the driver has gone, so have its workers, and the runs are free
-        still = [w for w in workers if alive(w)]
-        assert not still, f"workers outlived their driver: {still}"
-        for r in runs:
-            lock = Lock(out / "runs" / f"{r}.lock", "test")
-            assert lock.try_acquire(), f"run {r} still held after its driver exited"
-            lock.release()
+        check_driver_gone(workers, out, runs)
         assert time.time() - t0 < 25, "the driver took too long to stop"
         assert proc.returncode == (130 if sig == signal.SIGINT else 143), err
         lines = [line for line in err.splitlines() if line.startswith("foilmap:")]
