@@ -125,3 +125,28 @@ def test_abort_returns_only_when_every_worker_has_exited(tmp_path):
     backend.abort()
     assert not alive(pid), "abort returned while its worker was still committing"
     backend.close()
+
+
+def test_the_index_is_rewritten_at_most_twice_a_second_and_ends_whole(tmp_path, monkeypatch):
+    # forty tiny runs on two workers start and end far faster than INDEX_INTERVAL apart: the
+    # driver writes the index as they come, at most once per interval, and whole at the end
+    from foilmap.run import local
+    from foilmap.run.local import drive_study
+    from foilmap.store.folder import StudyFolder
+    from foilmap.store.studyfile import load_study_text
+
+    writes = []
+    real = StudyFolder.write_index
+
+    def counted(self, states):
+        writes.append(time.monotonic())
+        real(self, states)
+
+    monkeypatch.setattr(StudyFolder, "write_index", counted)
+    t0 = time.monotonic()
+    drive_study(load_study_text(small_study("ix", range(1, 41), 10)), tmp_path / "o", workers=2)
+    took = time.monotonic() - t0
+    # one before the runs, one at the end, and at most one per interval between
+    assert len(writes) <= took / local.INDEX_INTERVAL + 3, (len(writes), took)
+    index = StudyFolder(tmp_path / "o").read_index()
+    assert len(index) == 40 and {e["state"] for e in index.values()} == {"complete"}

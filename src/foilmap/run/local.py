@@ -329,17 +329,6 @@ class _InProcessBackend:
 def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[dict]:
     """Submit every run, collect them as they complete, keep the index and the progress."""
     summaries = []
-    if isinstance(backend, _InProcessBackend):
-        def live():
-            if _drain(backend.messages(), progress, states):
-                folder.write_index(states)  # live status sees the run as running
-
-        def start(run_id):
-            states.setdefault(run_id, {})["state"] = RunState.RUNNING.value
-            folder.write_index(states)
-
-        backend.on_message = live
-        backend.on_start = start
     due = [0.0]  # when the index may be written again (monotonic seconds)
     stale = [False]  # states changed since the index was last written
 
@@ -347,13 +336,25 @@ def _drive(backend, folder: StudyFolder, todo, args, states, progress) -> list[d
         """Rewrite the index, at most every INDEX_INTERVAL while runs start and end (a thousand
         tiny runs otherwise rewrite an index of a thousand entries two thousand times): what
         changed meanwhile is written by the loop's next turn, within INDEX_INTERVAL.  ``now``
-        for an interrupt."""
+        for an interrupt and for a run the calling process starts."""
         t = time.monotonic()
         if now or t >= due[0]:
             folder.write_index(states)
             due[0], stale[0] = t + INDEX_INTERVAL, False
         else:
             stale[0] = True
+
+    if isinstance(backend, _InProcessBackend):
+        def live():
+            if _drain(backend.messages(), progress, states) or stale[0]:
+                write_index()  # live status sees the run as running
+
+        def start(run_id):  # (the loop does not turn while this process runs the run)
+            states.setdefault(run_id, {})["state"] = RunState.RUNNING.value
+            write_index(now=True)
+
+        backend.on_message = live
+        backend.on_start = start
     try:
         futures = {backend.submit(args, r.run_id, folder.path): r for r in todo}
         for order, fut in enumerate(futures):

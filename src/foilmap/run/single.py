@@ -26,7 +26,7 @@ from foilmap.design.family import FamilyProblem, build_problem
 from foilmap.design.problem import Problem
 from foilmap.design.results import RunState
 from foilmap.design.study import Parametrisation, RunSpec, Study
-from foilmap.store.folder import StudyFolder
+from foilmap.store.folder import StudyFolder, log_summary
 from foilmap.store.lock import Busy, Lock
 from foilmap.store.runlog import (
     CheckpointError,
@@ -69,7 +69,7 @@ def _seed_note(run_id: str, why: str, log: RunLog | None) -> str:
     return f"run {run_id}: {why}; restarts from its seed"
 
 
-def recover(log_path: Path, ckpt_path: Path, run_id: str):
+def recover(log_path: Path, ckpt_path: Path, run_id: str, log: RunLog | None = None):
     """How a run continues from what its folder holds: ``(state, generation, log, note)``.
 
     ``state`` is the checkpoint's search state when the checkpoint is sound, signed by the
@@ -80,10 +80,11 @@ def recover(log_path: Path, ckpt_path: Path, run_id: str):
     same bits as before, only later.  ``note`` is one line saying what was found and done (None
     when nothing was amiss: a log a few rows ahead of its checkpoint is the normal state of a
     killed run).  The caller holds the run's lock, so nobody else writes the log: a short file
-    is truncated, not being flushed, and is named at once.
+    is truncated, not being flushed, and is named at once.  ``log``: the log as the caller has
+    already read it whole (not read again).
     """
-    log, log_err = None, None
-    if log_path.exists():
+    log_err = None
+    if log is None and log_path.exists():
         try:
             log = read_run(log_path, settle=False)  # the caller holds the run's lock
         except Exception as exc:  # noqa: BLE001 - any damage: keep what can be kept below
@@ -159,12 +160,15 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
     from foilmap.design.search import is_finished, new_search, step
 
     log_path, ckpt_path = folder.log_path(run.run_id), folder.checkpoint_path(run.run_id)
-    if folder.is_complete(run.run_id, settle=False):  # (an unreadable log, killed before its
-        ckpt_path.unlink(missing_ok=True)  # first flush, starts again; we hold its lock)
-        return folder.summary(run.run_id)
+    # read once, as the lock's holder (an unreadable log, killed before its first flush, is
+    # None here and recover names its damage)
+    found = folder.log(run.run_id, settle=False)
+    if found is not None and found.state is RunState.COMPLETE:
+        ckpt_path.unlink(missing_ok=True)
+        return log_summary(run.run_id, found)
     start = _station_starts(study, run, folder, report, should_stop) if run.family else None
     problem = build_problem(study, run, start)
-    state, kept, old, note = recover(log_path, ckpt_path, run.run_id)
+    state, kept, old, note = recover(log_path, ckpt_path, run.run_id, found)
     notes = [note] if note else []
     if note and report is not None:
         report({"run": run.run_id, "note": note})

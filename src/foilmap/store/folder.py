@@ -178,8 +178,8 @@ class StudyFolder:
         except (OSError, KeyError, ValueError):
             return None
 
-    def is_complete(self, run_id: str, settle: bool = True) -> bool:
-        log = self.log(run_id, settle)
+    def is_complete(self, run_id: str) -> bool:
+        log = self.log(run_id)
         return log is not None and log.state is RunState.COMPLETE
 
     def summary(self, run_id: str) -> dict:
