@@ -100,6 +100,35 @@ def test_best_and_status_warn_when_the_best_design_sits_on_the_floor(on_the_floo
     assert "sits on the local-thickness floor" in capsys.readouterr().out
 
 
+def test_a_finished_runs_warnings_come_from_the_index_without_opening_its_log(
+        on_the_floor, tmp_path, monkeypatch):
+    import shutil
+
+    import foilmap.store.folder as folder_mod
+    from foilmap.report.study import design_warnings
+
+    out = tmp_path / "copy"
+    shutil.copytree(on_the_floor, out)
+    from_logs = floor_warnings(on_the_floor)
+    entry = json.loads((out / "index.json").read_text())["runs"][0]
+    log = read_run(next((out / "runs").glob("*.h5")))
+    assert entry["best_shape"] == StudyFolder(out).best_shape(entry["run"], log)
+    assert entry["best_shape"]["floor_margin"] < 0.05 * 0.03  # what the warning reads
+
+    def no_log(*a, **k):
+        raise AssertionError("a finished run's log was opened")
+
+    with monkeypatch.context() as m:
+        m.setattr(folder_mod, "read_run", no_log)
+        assert design_warnings(out) == from_logs and len(from_logs) == 1
+    # an index written without best shapes (an older foilmap): the same lines, from the logs
+    index = json.loads((out / "index.json").read_text())
+    for e in index["runs"]:
+        del e["best_shape"]
+    (out / "index.json").write_text(json.dumps(index))
+    assert design_warnings(out) == from_logs
+
+
 def test_no_warning_far_from_the_floor(tmp_path):
     """A floor the design never nears gives no warning (the same short search, floor 0.0005)."""
     from foilmap.run.local import drive_study

@@ -297,3 +297,21 @@ def test_every_key_accepts_its_limits():
                 except InputError as exc:  # another key's rule (a cross-check) may object
                     assert f"{table}.{key} = " not in str(exc) and \
                         f"{table}[1].{key} = " not in str(exc), str(exc)
+
+
+def test_a_run_is_found_by_its_id_and_the_expansion_is_not_sent_to_workers():
+    import pickle
+
+    from conftest import small_study
+
+    st = load_study_text(small_study("many", range(1, 301), 20))
+    sent = len(pickle.dumps(st))
+    runs = st.runs()
+    assert [st.run(r.run_id) for r in runs] == runs and len(runs) == 300
+    runs.pop()  # the caller's list is its own
+    assert len(st.runs()) == 300
+    with pytest.raises(KeyError):
+        st.run("p.s301")
+    back = pickle.loads(pickle.dumps(st))
+    assert len(pickle.dumps(st)) == sent  # a worker gets the study, not its 300 runs
+    assert back == st and back.runs() == st.runs()

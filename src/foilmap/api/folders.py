@@ -114,7 +114,7 @@ def status(folder) -> dict:
     from foilmap.store.folder import StudyFolder
 
     st = StudyFolder(folder).status()
-    st["warnings"] = design_warnings(Path(folder))
+    st["warnings"] = design_warnings(Path(folder), st)
     return st
 
 

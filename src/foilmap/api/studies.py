@@ -89,9 +89,12 @@ class StudyResults:
 
     def run(self, run_id: str) -> RunResult:
         """One run's result by id."""
-        for r in self.study.runs():
-            if r.run_id == run_id:
-                return self._result(r, self._folder.read_index().get(run_id, {}))
+        try:
+            r = self.study.run(run_id)
+        except KeyError:
+            pass
+        else:
+            return self._result(r, self._folder.read_index().get(run_id, {}))
         raise KeyError(f"no run {run_id!r}; runs: {', '.join(r.run_id for r in self.study.runs())}")
 
     def best(self) -> RunResult:

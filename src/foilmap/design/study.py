@@ -13,6 +13,7 @@ import math
 import re
 import tomllib
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -394,6 +395,24 @@ class Study:
         """Expand into runs: variants × points × seeds, in that order.  A family study has a
         run per station (when it starts from the stations) and then the joint search, per
         variant and seed."""
+        return list(self._runs)
+
+    def run(self, run_id: str) -> RunSpec:
+        """The run with id ``run_id`` (KeyError when the study has none)."""
+        return self._run_by_id[run_id]
+
+    def __getstate__(self) -> dict:
+        # the expanded runs are not sent along (a worker gets the study with every task)
+        return {k: v for k, v in self.__dict__.items() if k not in ("_runs", "_run_by_id")}
+
+    @cached_property
+    def _run_by_id(self) -> dict[str, RunSpec]:
+        return {r.run_id: r for r in self._runs}
+
+    @cached_property
+    def _runs(self) -> tuple[RunSpec, ...]:
+        # expanded once per study object (a study of a thousand runs is asked for its runs
+        # by every task and every summary: expanding each time made that quadratic)
         out = []
         for vname, over in self.variants:
             shape = {**self.shape, **over.get("shape", {})}
@@ -419,7 +438,7 @@ class Study:
                     else:
                         out.append(RunSpec(f"{base}.s{s}", s, p, vname, shape, srch,
                                            constraints=cons, family=fam))
-        return out
+        return tuple(out)
 
     def with_budget(self, evals: int) -> "Study":
         """The same study with every run's evaluation budget replaced."""

@@ -13,7 +13,7 @@ from foilmap.errors import InputError
 from foilmap.report.text import plural
 from foilmap.store.folder import StudyFolder, is_multi_objective
 
-__all__ = ["format_run_summary", "format_status", "damage_lines", "sharp_nose_warnings", "floor_warnings", "design_warnings",
+__all__ = ["format_run_summary", "format_status", "damage_lines", "sharp_nose_warnings", "floor_warnings", "design_warnings", "best_shapes",
            "runs_figure", "plot_runs", "run_colours", "RUN_PALETTE", "LE_RADIUS_FLOOR", "ON_FLOOR", "is_multi_objective"]
 
 
@@ -80,22 +80,30 @@ def damage_lines(st: dict) -> list[str]:
 LE_RADIUS_FLOOR = 0.002
 
 
-def _run_bests(folder: StudyFolder):
-    """(run id, best feasible design) for every logged run that has one."""
-    for r, log in folder.logged_runs():
-        b = log.best()
-        if b is not None:
-            yield r.run_id, folder.design(r.run_id, b["index"], log)
+def best_shapes(out: Path, status: dict | None = None) -> list[tuple[str, dict]]:
+    """(run id, best shape) for every run with a feasible design (see
+    :meth:`StudyFolder.best_shape`).  A finished run's comes from the index (no log opened);
+    ``status`` is the folder's :meth:`StudyFolder.status` when the caller has it already."""
+    folder = StudyFolder(out)
+    st = status if status is not None else folder.status()
+    found = []
+    for row in st["runs"]:
+        shape = row.get("best_shape")
+        if shape is None and row["generations"]:  # an index written before best shapes were
+            log = folder.log(row["run"])
+            shape = folder.best_shape(row["run"], log) if log is not None else {}
+        if shape:
+            found.append((row["run"], shape))
+    return found
 
 
-def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
+def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR,
+                        status: dict | None = None) -> list[str]:
     """One warning line per run whose best feasible design has a leading-edge radius below
     ``floor`` (chords), naming the study key that prevents it."""
-    from foilmap.section.geometry import leading_edge_radius
-
     lines = []
-    for run_id, d in _run_bests(StudyFolder(out)):
-        radius = float(leading_edge_radius(d.section)[0])  # a logged feasible design: valid
+    for run_id, shape in best_shapes(out, status):
+        radius = shape["le_radius"]
         if radius < floor:
             lines.append(f"warning: the best design of run {run_id} has a leading-edge radius "
                          f"of {radius:.2g} c, below the practical floor of about {floor:g} c; "
@@ -109,18 +117,15 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR) -> list[str]:
 ON_FLOOR = 0.05
 
 
-def floor_warnings(out: Path) -> list[str]:
+def floor_warnings(out: Path, status: dict | None = None) -> list[str]:
     """One warning line per run whose best feasible design sits on the local-thickness floor
     (``constraints.min_local_thickness``), naming where and the study keys that govern it."""
-    from foilmap.section.geometry import floor_clearance
-
-    folder = StudyFolder(out)
-    t0 = float(folder.study.constraints.get("min_local_thickness", 0.0))
+    t0 = float(StudyFolder(out).study.constraints.get("min_local_thickness", 0.0))
     if t0 <= 0.0:
         return []
     lines = []
-    for run_id, d in _run_bests(folder):
-        margin, x = (float(v[0]) for v in floor_clearance(d.section, t0))
+    for run_id, shape in best_shapes(out, status):
+        margin, x = shape["floor_margin"], shape["floor_x"]
         if margin < ON_FLOOR * t0:
             lines.append(f"warning: the best design of run {run_id} sits on the local-thickness "
                          f"floor (at x/c {x:.3f} it is {margin:.2g} c above the floor of "
@@ -130,10 +135,11 @@ def floor_warnings(out: Path) -> list[str]:
     return lines
 
 
-def design_warnings(out: Path) -> list[str]:
+def design_warnings(out: Path, status: dict | None = None) -> list[str]:
     """Every warning about the best designs of a study folder: needle noses and sections on
-    the local-thickness floor."""
-    return sharp_nose_warnings(out) + floor_warnings(out)
+    the local-thickness floor (``status``: the folder's status, when the caller has it)."""
+    st = status if status is not None else StudyFolder(out).status()
+    return sharp_nose_warnings(out, status=st) + floor_warnings(out, status=st)
 
 
 #: the colours of the runs, in the study's order (matplotlib's tab10, repeating)

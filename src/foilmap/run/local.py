@@ -45,8 +45,9 @@ INDEX_INTERVAL = 0.5
 def _todo(folder: StudyFolder, states: dict) -> list[RunSpec]:
     todo = []
     for r in folder.study.runs():
-        if folder.is_complete(r.run_id):
-            s = folder.summary(r.run_id)
+        log = folder.log(r.run_id)  # read once: the complete check and the summary share it
+        if log is not None and log.state is RunState.COMPLETE:
+            s = folder.summary(r.run_id, log)
             states[r.run_id] = {k: s[k] for k in INDEXED if s.get(k) is not None}
         else:
             todo.append(r)
@@ -269,7 +270,7 @@ class _InProcessBackend:
 
     def _run(self, task: _Task) -> dict:
         (study,) = task.args
-        run = next(r for r in study.runs() if r.run_id == task.run_id)
+        run = study.run(task.run_id)
         if self.on_start is not None:
             self.on_start(task.run_id)
         error = None

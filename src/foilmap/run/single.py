@@ -26,7 +26,7 @@ from foilmap.design.family import FamilyProblem, build_problem
 from foilmap.design.problem import Problem
 from foilmap.design.results import RunState
 from foilmap.design.study import Parametrisation, RunSpec, Study
-from foilmap.store.folder import StudyFolder, log_summary
+from foilmap.store.folder import StudyFolder
 from foilmap.store.lock import Busy, Lock
 from foilmap.store.runlog import (
     CheckpointError,
@@ -145,7 +145,7 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
     held throughout; another process holding it makes this wait up to :data:`RUN_LOCK_WAIT`
     seconds, then raise :class:`~foilmap.store.lock.Busy`.
     """
-    folder = StudyFolder(out)
+    folder = StudyFolder(out, study)
     log_path = folder.log_path(run.run_id)
     log_path.parent.mkdir(parents=True, exist_ok=True)
     lock = Lock(log_path.with_suffix(".lock"), f"run {run.run_id}", label=f"run {run.run_id}")
@@ -165,7 +165,7 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
     found = folder.log(run.run_id, settle=False)
     if found is not None and found.state is RunState.COMPLETE:
         ckpt_path.unlink(missing_ok=True)
-        return log_summary(run.run_id, found)
+        return folder.summary(run.run_id, found)
     start = _station_starts(study, run, folder, report, should_stop) if run.family else None
     problem = build_problem(study, run, start)
     state, kept, old, note = recover(log_path, ckpt_path, run.run_id, found)
@@ -388,7 +388,7 @@ def worker(study: Study, run_id: str, out: str) -> dict:
     In a Dask task the run commits and stops within about a second once the task is no longer
     wanted (its client gone or cancelled).
     """
-    run = next(r for r in study.runs() if r.run_id == run_id)
+    run = study.run(run_id)
     q = _QUEUE
     report = (lambda m: q.put(m)) if q is not None else None
     stop = (lambda: _STOP["requested"]) if q is not None else _dask_task_gone()

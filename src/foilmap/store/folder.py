@@ -39,7 +39,7 @@ STUDY_NAME = "study.toml"
 OPTIONS_NAME = "options.json"
 #: what the index keeps of a finished run (so that status need not open complete logs)
 INDEXED = ("state", "generations", "evaluations", "best", "best_objectives", "resumes",
-           "elapsed_s", "hypervolume", "rejected")
+           "elapsed_s", "hypervolume", "rejected", "best_shape")
 
 
 def log_summary(run_id: str, log: RunLog) -> dict:
@@ -68,9 +68,11 @@ def rejected_counts(log: RunLog) -> dict:
 class StudyFolder:
     """A study folder on disk (see the module docstring for its layout)."""
 
-    def __init__(self, path: str | Path):
+    def __init__(self, path: str | Path, study: Study | None = None):
+        """``study``: the folder's study when the caller holds it already (a worker is handed
+        the validated study with its task: no need to read and check study.toml again)."""
         self.path = Path(path)
-        self._study: Study | None = None
+        self._study: Study | None = study
 
     def __repr__(self) -> str:
         return f"StudyFolder({str(self.path)!r})"
@@ -133,9 +135,10 @@ class StudyFolder:
         return self._study
 
     def run_spec(self, run_id: str) -> RunSpec:
-        for r in self.study.runs():
-            if r.run_id == run_id:
-                return r
+        try:
+            return self.study.run(run_id)
+        except KeyError:
+            pass
         raise InputError(f"no run {run_id!r} in {str(self.path)!r} "
                          f"(runs: {', '.join(r.run_id for r in self.study.runs())})")
 
@@ -182,9 +185,30 @@ class StudyFolder:
         log = self.log(run_id)
         return log is not None and log.state is RunState.COMPLETE
 
-    def summary(self, run_id: str) -> dict:
-        """A run's summary from its log (see :func:`log_summary`)."""
-        return log_summary(run_id, read_run(self.log_path(run_id)))
+    def summary(self, run_id: str, log: RunLog | None = None) -> dict:
+        """A run's summary from its log (see :func:`log_summary`), with ``best_shape`` (see
+        :meth:`best_shape`); ``log`` is the log as already read."""
+        log = log if log is not None else read_run(self.log_path(run_id))
+        return {**log_summary(run_id, log), "best_shape": self.best_shape(run_id, log)}
+
+    def best_shape(self, run_id: str, log: RunLog) -> dict:
+        """What the design warnings need of a run's best feasible design, so that a finished
+        run's index entry holds it and status opens no finished log: its leading-edge radius
+        (``le_radius``, chords) and, when the study sets ``constraints.min_local_thickness``,
+        its least clearance above that floor and where (``floor_margin``, ``floor_x``).  Empty
+        when the run has no feasible design (a front study's runs included)."""
+        from foilmap.section.geometry import floor_clearance, leading_edge_radius
+
+        b = log.best()
+        if b is None:
+            return {}
+        sec = self.design(run_id, b["index"], log).section
+        shape = {"le_radius": float(leading_edge_radius(sec)[0])}  # a logged feasible design
+        t0 = float(self.study.constraints.get("min_local_thickness", 0.0))
+        if t0 > 0.0:
+            margin, x = (float(v[0]) for v in floor_clearance(sec, t0))
+            shape.update(floor_margin=margin, floor_x=x)
+        return shape
 
     def logged_runs(self):
         """(run, log) for every run of the study whose log holds at least one generation."""
