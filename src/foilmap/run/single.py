@@ -14,8 +14,10 @@ from __future__ import annotations
 import ctypes
 import os
 import signal
+import sys
 import threading
 import time
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -311,11 +313,47 @@ def _watch_driver(driver_pid: int) -> None:
         time.sleep(WATCH_INTERVAL)
 
 
+#: what ``import cma`` pulls in that a search never uses: the plotting interface (cma.s) and
+#: scipy.stats (for a rank correlation in its surrogate models); 1.3 s of a worker's start
+_CMA_UNUSED = ("matplotlib", "matplotlib.pyplot", "scipy.stats")
+
+
+def import_cma_lean() -> None:
+    """Import cma without :data:`_CMA_UNUSED`, in a process of our own (a pool worker).
+
+    cma imports both at its top inside ``try``/``except ImportError`` and falls back (no
+    plotting; its own Kendall tau), and a search uses neither.  Each is held back only while
+    cma imports (an entry of None in ``sys.modules``) and only if nothing has imported it yet,
+    so a later import of either in this process works as usual.  If cma's import fails this way
+    anyway (another version), cma is imported as usual.  Never called in a caller's process:
+    there it would leave the caller's cma without plotting.
+    """
+    if "cma" in sys.modules:
+        return
+    held = [m for m in _CMA_UNUSED if m not in sys.modules]
+    try:
+        for m in held:
+            sys.modules[m] = None  # an import of it raises ImportError while cma imports
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # cma's "could not import matplotlib.pyplot"
+            import cma  # noqa: F401
+    except ImportError:
+        for m in [m for m in sys.modules if m == "cma" or m.startswith("cma.")]:
+            del sys.modules[m]
+    finally:
+        for m in held:
+            if sys.modules.get(m, 0) is None:
+                del sys.modules[m]
+    import cma  # noqa: F401,F811  (as usual when the lean import failed)
+
+
 def init_worker(queue, driver_pid: int | None = None) -> None:
     """Set up a pool process: progress queue, SIGTERM as a clean stop, Ctrl-C left to the
-    driver, and death with the driver (``driver_pid``, the process that started this one)."""
+    driver, death with the driver (``driver_pid``, the process that started this one), and
+    cma imported without what a search never uses (:func:`import_cma_lean`)."""
     global _QUEUE
     _QUEUE = queue
+    import_cma_lean()
     signal.signal(signal.SIGTERM, _on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
     if driver_pid is not None:
