@@ -76,8 +76,13 @@ def check_same_bits(out: Path, ref: Path) -> None:
 
 @pytest.fixture(scope="module")
 def loop_ref(tmp_path_factory, key_dir):
-    """The uninterrupted study of the kill loops (two runs of 12,000 evaluations)."""
-    return reference_folder(tmp_path_factory, study_text(12000))
+    """The uninterrupted study of the kill loops (two runs of 6,000 evaluations).
+
+    Sized to the tries: a try commits a few hundred evaluations a run before its kill, so
+    eight tries leave most of the study to the last resume.  With 12,000 that resume took 14 s
+    of each loop's 35; with 4,000 a kind of eight tries had one end first on an idle machine
+    (7 landed, 4 are needed): 6,000 leaves room for a machine twice as fast."""
+    return reference_folder(tmp_path_factory, study_text(6000))
 
 
 def prepared(out: Path) -> bool:
