@@ -101,7 +101,8 @@ def test_a_killed_worker_costs_nothing(tmp_path, tmp_path_factory):
 
 
 def test_a_killed_driver_resumes(tmp_path, tmp_path_factory):
-    st = study(4, 3000)
+    # two runs, the study (and so the reference) of the killed-driver-alone test below
+    st = study(2, 3000)
     sf, ref = reference_folder(tmp_path_factory, st.text)
     out = tmp_path / "cut"
     proc = subprocess.Popen([sys.executable, "-m", "foilmap.cli", "run", str(sf), "--out",
