@@ -242,3 +242,29 @@ def test_a_generations_digest_covers_its_own_archive_rows_and_no_others():
     evals2[runlog.EVAL_FIELDS[0]][3] = -1.0
     again = [generation_digest(evals2, gen, front, g) for g in (1, 2, 3)]
     assert again[0] == before[0] and again[2] == before[2] and again[1] != before[1]
+
+
+def test_a_file_hdf5_cannot_close_is_kept_and_the_process_leaves_without_collecting_it():
+    import subprocess
+    import sys
+
+    code = """
+import sys
+from foilmap.store import runlog
+
+class Refusing:  # what h5py does on a full disk: close raises, the file stays unclosable
+    def close(self):
+        raise RuntimeError("file write failed: No space left on device")
+
+runlog.leave_if_unclosed(5)  # nothing held: returns
+try:
+    runlog.close_or_keep(Refusing(), "a dataset")
+except RuntimeError:
+    pass
+assert len(runlog.UNCLOSED) == 1 and runlog.UNCLOSED[0][1] == ("a dataset",)
+print("leaving", flush=False)
+runlog.leave_if_unclosed(7)
+print("not reached")
+"""
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
+    assert (r.returncode, r.stdout, r.stderr) == (7, "leaving\n", "")

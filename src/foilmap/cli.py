@@ -900,5 +900,19 @@ def main(argv: list[str] | None = None) -> int:
         raise
 
 
+def entry() -> None:
+    """The ``foilmap`` command: :func:`main`, then leave with its exit code.  A process that
+    holds a run log HDF5 could not close (a full disk) leaves without collecting it
+    (:func:`~foilmap.store.runlog.leave_if_unclosed`): collecting it would crash the process."""
+    from foilmap.store.runlog import leave_if_unclosed
+
+    try:
+        code = main()
+    except SystemExit as exc:
+        code = exc.code if isinstance(exc.code, int) else (0 if exc.code is None else 1)
+    leave_if_unclosed(code)
+    sys.exit(code)
+
+
 if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
+    entry()

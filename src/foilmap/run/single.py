@@ -11,6 +11,7 @@ it checks that the checkpoint and the log agree (:func:`recover`).
 
 from __future__ import annotations
 
+import atexit
 import ctypes
 import os
 import signal
@@ -35,6 +36,7 @@ from foilmap.store.runlog import (
     RunLog,
     RunLogWriter,
     generation_digest,
+    leave_if_unclosed,
     load_checkpoint,
     read_run,
     save_checkpoint,
@@ -174,7 +176,8 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
     notes = [note] if note else []
     if note and report is not None:
         report({"run": run.run_id, "note": note})
-    if state is not None:
+    fresh = state is None
+    if not fresh:
         writer = RunLogWriter.reopen(log_path, kept, old=old)
         state.elapsed = float(old.gen["time"][kept - 1]) if kept else 0.0
         state.started = time.time()
@@ -203,9 +206,11 @@ def _execute(study: Study, run: RunSpec, folder: StudyFolder, report, should_sto
             log_path, attrs=attrs, study_text=study.text, dimension=problem.param.dimension,
             objective_names=problem.objective_names, constraint_names=problem.constraint_names,
             chunk_rows=state.base_popsize, resumes=(old.resumes + 1) if old is not None else 0)
-        _commit(writer, [], ckpt_path, state, run.run_id)
 
-    with writer:
+    with writer:  # closed on every way out: HDF5 left to close a file whose write failed (a
+        # full disk) when the writer is collected crashes the process (SIGSEGV in libhdf5)
+        if fresh:
+            _commit(writer, [], ckpt_path, state, run.run_id)
         pending = []
         # the first generation is committed at once (status shows a resumed run moving, and a
         # run killed in its first second keeps a generation), then at least once a second
@@ -361,6 +366,8 @@ def init_worker(queue, driver_pid: int | None = None) -> None:
     global _QUEUE
     _QUEUE = queue
     import_cma_lean()
+    # a log HDF5 could not close (a full disk) is never collected: the process leaves first
+    atexit.register(leave_if_unclosed, 0)
     signal.signal(signal.SIGTERM, _on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
     if driver_pid is not None:

@@ -21,6 +21,7 @@ import os
 import pickle
 import secrets
 import struct
+import sys
 import tempfile
 import time
 from dataclasses import dataclass
@@ -83,6 +84,36 @@ def _append(ds, rows):
     ds[n:] = rows
 
 
+#: HDF5 files whose close failed (a write the disk refused: full, or gone).  HDF5 cannot
+#: close such a file later either: collecting its objects crashes the process (SIGSEGV in
+#: libhdf5), so they are kept here until the process ends.  foilmap's own processes (pool
+#: workers, the command) then leave without collecting them: :func:`leave_if_unclosed`.
+UNCLOSED: list = []
+
+
+def close_or_keep(f, *handles) -> None:
+    """Close an HDF5 file; when HDF5 fails to (it re-raises), keep the file and ``handles``
+    (its datasets) in :data:`UNCLOSED` so that they are never collected."""
+    try:
+        f.close()
+    except (OSError, RuntimeError):
+        UNCLOSED.append((f, handles))
+        raise
+
+
+def leave_if_unclosed(code: int) -> None:
+    """End this process at once with ``code`` (streams flushed, nothing collected) if it holds
+    a file HDF5 could not close (:data:`UNCLOSED`); return otherwise.  Only for a process of
+    foilmap's own, at its very end."""
+    if UNCLOSED:
+        for stream in (sys.stdout, sys.stderr):
+            try:
+                stream.flush()
+            except (OSError, ValueError):
+                pass
+        os._exit(code)
+
+
 class RunLogWriter:
     """Append-only writer of one run's log (use as a context manager)."""
 
@@ -134,7 +165,7 @@ class RunLogWriter:
             f.swmr_mode = True
             f.flush()
         except BaseException:
-            f.close()
+            close_or_keep(f)
             raise
         return cls(path, f)
 
@@ -182,9 +213,9 @@ class RunLogWriter:
             f.swmr_mode = True
         except BaseException:
             try:
-                f.close()
-            except Exception:
-                pass
+                close_or_keep(f)
+            except (OSError, RuntimeError):
+                pass  # kept (UNCLOSED); the first error is the one to raise
             if tmp.exists():
                 tmp.unlink()
             raise
@@ -232,7 +263,7 @@ class RunLogWriter:
     def close(self) -> None:
         f, self.f = self.f, None
         if f:
-            f.close()
+            close_or_keep(f, self._ev, self._gen, self._front)
 
     def __enter__(self):
         return self
