@@ -257,11 +257,18 @@ class Refusing:  # what h5py does on a full disk: close raises, the file stays u
         raise RuntimeError("file write failed: No space left on device")
 
 runlog.leave_if_unclosed(5)  # nothing held: returns
+runlog.check_writable_process()  # nor raises
 try:
     runlog.close_or_keep(Refusing(), "a dataset")
 except RuntimeError:
     pass
 assert len(runlog.UNCLOSED) == 1 and runlog.UNCLOSED[0][1] == ("a dataset",)
+try:  # no later run log is begun in this process: the error names the refusal
+    runlog.check_writable_process()
+except OSError as exc:
+    assert "No space left on device" in str(exc)
+else:
+    raise AssertionError("a spoilt process began a run log")
 print("leaving", flush=False)
 runlog.leave_if_unclosed(7)
 print("not reached")

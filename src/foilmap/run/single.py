@@ -35,6 +35,7 @@ from foilmap.store.runlog import (
     CheckpointError,
     RunLog,
     RunLogWriter,
+    check_writable_process,
     generation_digest,
     leave_if_unclosed,
     load_checkpoint,
@@ -149,6 +150,7 @@ def execute_run(study: Study, run: RunSpec, out: Path, report=None, should_stop=
     held throughout; another process holding it makes this wait up to :data:`RUN_LOCK_WAIT`
     seconds, then raise :class:`~foilmap.store.lock.Busy`.
     """
+    check_writable_process()  # a full disk spoilt HDF5 in this process: the run fails at once
     folder = StudyFolder(out, study)
     log_path = folder.log_path(run.run_id)
     log_path.parent.mkdir(parents=True, exist_ok=True)

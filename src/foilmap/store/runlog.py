@@ -93,12 +93,21 @@ UNCLOSED: list = []
 
 def close_or_keep(f, *handles) -> None:
     """Close an HDF5 file; when HDF5 fails to (it re-raises), keep the file and ``handles``
-    (its datasets) in :data:`UNCLOSED` so that they are never collected."""
+    (its datasets) in :data:`UNCLOSED`, with the error, so that they are never collected."""
     try:
         f.close()
-    except (OSError, RuntimeError):
-        UNCLOSED.append((f, handles))
+    except (OSError, RuntimeError) as exc:
+        UNCLOSED.append((f, handles, str(exc)))
         raise
+
+
+def check_writable_process() -> None:
+    """Raise OSError when this process holds a file HDF5 could not close (:data:`UNCLOSED`):
+    HDF5's state in the process is then spoilt for other files too (a later file fails with
+    errors of HDF5's own), so no run log is begun here; the error names the first refusal."""
+    if UNCLOSED:
+        raise OSError(f"a run log of this process could not be closed after the disk refused a "
+                      f"write, so HDF5 cannot write logs in it any more ({UNCLOSED[0][2]})")
 
 
 def leave_if_unclosed(code: int) -> None:
