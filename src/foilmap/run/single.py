@@ -38,6 +38,7 @@ from foilmap.store.runlog import (
     check_writable_process,
     generation_digest,
     leave_if_unclosed,
+    quiet_refused_writes,
     load_checkpoint,
     read_run,
     save_checkpoint,
@@ -368,8 +369,10 @@ def init_worker(queue, driver_pid: int | None = None) -> None:
     global _QUEUE
     _QUEUE = queue
     import_cma_lean()
-    # a log HDF5 could not close (a full disk) is never collected: the process leaves first
+    # a log HDF5 could not close (a full disk) is never collected: the process leaves first;
+    # h5py's messages about that file's leftover objects are dropped (the run says it)
     atexit.register(leave_if_unclosed, 0)
+    quiet_refused_writes()
     signal.signal(signal.SIGTERM, _on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the driver decides; it terminates us
     if driver_pid is not None:

@@ -110,6 +110,23 @@ def check_writable_process() -> None:
                       f"write, so HDF5 cannot write logs in it any more ({UNCLOSED[0][2]})")
 
 
+def quiet_refused_writes() -> None:
+    """Drop, in this process, the messages h5py prints ("Exception ignored in ... __dealloc__")
+    when it frees an object of a file whose writes the disk refused: after a full disk each
+    leftover object of that file says so with a traceback, while the run's failure is already
+    reported in one line.  Any other unraisable exception is printed as before.  Only for a
+    process of foilmap's own (the command, a pool worker)."""
+    previous = sys.unraisablehook
+
+    def hook(unraisable) -> None:
+        exc = unraisable.exc_value
+        if isinstance(exc, (RuntimeError, OSError)) and "write failed" in str(exc):
+            return
+        previous(unraisable)
+
+    sys.unraisablehook = hook
+
+
 def leave_if_unclosed(code: int) -> None:
     """End this process at once with ``code`` (streams flushed, nothing collected) if it holds
     a file HDF5 could not close (:data:`UNCLOSED`); return otherwise.  Only for a process of
@@ -133,6 +150,7 @@ class RunLogWriter:
         self._ev = {k: h5file["evals"][k] for k in EVAL_FIELDS}
         self._gen = {k: h5file["gen"][k] for k in GEN_FIELDS}
         self._front = h5file["front/index"]
+        self._meta = {k: h5file["meta"][k] for k in ("state", "finished")}
 
     @classmethod
     def create(cls, path: str | Path, *, attrs: dict, study_text: str, dimension: int,
@@ -142,6 +160,7 @@ class RunLogWriter:
 
         path = Path(path)
         f = h5py.File(path, "w", libver=_LIBVER)
+        ev = gen = front = meta = None  # held on failure with the file (close_or_keep)
         try:
             f.attrs["schema_version"] = SCHEMA_VERSION
             f.attrs["units"] = json.dumps(UNITS)
@@ -166,7 +185,8 @@ class RunLogWriter:
                                    ("time", (), "f8"), ("hypervolume", (), "f8"),
                                    ("front_offset", (), "i8"), ("front_size", (), "i4")):
                 _create(gen, name, tail, dt, 64)
-            _create(f.create_group("front"), "index", (), "i8", 256)
+            front = f.create_group("front")
+            _create(front, "index", (), "i8", 256)
             meta = f.create_group("meta")
             meta.create_dataset("state", data=np.array([RunState.RUNNING.code], dtype="i1"))
             meta.create_dataset("finished", data=np.array([np.nan]))
@@ -174,7 +194,7 @@ class RunLogWriter:
             f.swmr_mode = True
             f.flush()
         except BaseException:
-            close_or_keep(f)
+            close_or_keep(f, ev, gen, front, meta)
             raise
         return cls(path, f)
 
@@ -194,6 +214,7 @@ class RunLogWriter:
         n_eval = int(old.gen["evaluations"][generations - 1]) if generations else 0
         tmp = path.with_name(f".{path.name}.resume.tmp")
         f = h5py.File(tmp, "w", libver=_LIBVER)
+        ev = gen = ds = meta = None  # held on failure with the file (close_or_keep)
         try:
             for k, v in old.attrs.items():
                 f.attrs[k] = v
@@ -222,7 +243,7 @@ class RunLogWriter:
             f.swmr_mode = True
         except BaseException:
             try:
-                close_or_keep(f)
+                close_or_keep(f, ev, gen, ds, meta)
             except (OSError, RuntimeError):
                 pass  # kept (UNCLOSED); the first error is the one to raise
             if tmp.exists():
@@ -265,14 +286,14 @@ class RunLogWriter:
         return generation_digest(self._ev, self._gen, self._front, self.generations)
 
     def finish(self, state: RunState = RunState.COMPLETE) -> None:
-        self.f["meta/state"][0] = state.code
-        self.f["meta/finished"][0] = time.time()
+        self._meta["state"][0] = state.code
+        self._meta["finished"][0] = time.time()
         self.f.flush()
 
     def close(self) -> None:
         f, self.f = self.f, None
         if f:
-            close_or_keep(f, self._ev, self._gen, self._front)
+            close_or_keep(f, self._ev, self._gen, self._front, self._meta)
 
     def __enter__(self):
         return self
