@@ -91,13 +91,15 @@ def _append(ds, rows):
 UNCLOSED: list = []
 
 
-def close_or_keep(f, *handles) -> None:
+def close_or_keep(f, *handles, cause: BaseException | None = None) -> None:
     """Close an HDF5 file; when HDF5 fails to (it re-raises), keep the file and ``handles``
-    (its datasets) in :data:`UNCLOSED`, with the error, so that they are never collected."""
+    (its datasets) in :data:`UNCLOSED`, with the error that made the file unclosable
+    (``cause``, the refused write, when the caller has it), so that they are never
+    collected."""
     try:
         f.close()
     except (OSError, RuntimeError) as exc:
-        UNCLOSED.append((f, handles, str(exc)))
+        UNCLOSED.append((f, handles, f"{cause}; then {exc}" if cause is not None else str(exc)))
         raise
 
 
@@ -193,8 +195,8 @@ class RunLogWriter:
             meta.create_dataset("resumes", data=np.array([resumes], dtype="i4"))
             f.swmr_mode = True
             f.flush()
-        except BaseException:
-            close_or_keep(f, ev, gen, front, meta)
+        except BaseException as exc:
+            close_or_keep(f, ev, gen, front, meta, cause=exc)
             raise
         return cls(path, f)
 
@@ -241,9 +243,9 @@ class RunLogWriter:
             os.replace(tmp, path)
             f = _open_for_writing(path)
             f.swmr_mode = True
-        except BaseException:
+        except BaseException as exc:
             try:
-                close_or_keep(f, ev, gen, ds, meta)
+                close_or_keep(f, ev, gen, ds, meta, cause=exc)
             except (OSError, RuntimeError):
                 pass  # kept (UNCLOSED); the first error is the one to raise
             if tmp.exists():
@@ -290,16 +292,16 @@ class RunLogWriter:
         self._meta["finished"][0] = time.time()
         self.f.flush()
 
-    def close(self) -> None:
+    def close(self, cause: BaseException | None = None) -> None:
         f, self.f = self.f, None
         if f:
-            close_or_keep(f, self._ev, self._gen, self._front, self._meta)
+            close_or_keep(f, self._ev, self._gen, self._front, self._meta, cause=cause)
 
     def __enter__(self):
         return self
 
-    def __exit__(self, *exc):
-        self.close()
+    def __exit__(self, kind, exc, tb):
+        self.close(cause=exc)  # exc: a refused write names the disk in a later run's error
         return False
 
 
