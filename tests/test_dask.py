@@ -47,18 +47,6 @@ def test_forty_runs_on_a_local_cluster_match_the_local_engine(tmp_path):
     assert [e["state"] for e in index["runs"]] == ["complete"] * 40
 
 
-def test_the_local_clusters_workers_import_cma_without_plotting_or_statistics(tmp_path):
-    from foilmap.run.cluster import DaskBackend
-
-    b = DaskBackend(2, None, tmp_path)
-    try:
-        held = b.client.run(lambda: [m for m in ("cma", "scipy.stats", "matplotlib")
-                                     if m in sys.modules])
-    finally:
-        b.close()
-    assert list(held.values()) == [["cma"], ["cma"]]  # preloaded, lean (run.single.dask_setup)
-
-
 def test_a_killed_worker_costs_nothing(tmp_path, tmp_path_factory):
     from foilmap.run.cluster import DaskBackend
 

@@ -44,11 +44,8 @@ class DaskBackend:
             except (OSError, TimeoutError) as exc:
                 raise InputError(f"cannot reach the Dask scheduler {scheduler!r}: {exc}") from None
         else:
-            # the workers are ours: cma imported without what a search never uses
-            # (foilmap.run.single.dask_setup)
             self.cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
-                                        dashboard_address=None, silence_logs=logging.ERROR,
-                                        preload=["foilmap.run.single"])
+                                        dashboard_address=None, silence_logs=logging.ERROR)
             self.client = Client(self.cluster)
         self.out = Path(out)
         self.run_of = {}

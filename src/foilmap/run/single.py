@@ -355,13 +355,6 @@ def import_cma_lean() -> None:
     import cma  # noqa: F401,F811  (as usual when the lean import failed)
 
 
-def dask_setup(worker) -> None:
-    """Dask's preload hook, for the worker processes of the LocalCluster that the dask engine
-    starts for a study (processes of ours): cma imported lean (:func:`import_cma_lean`).  A
-    cluster of the user's (``engine.scheduler``) is left as it is."""
-    import_cma_lean()
-
-
 def init_worker(queue, driver_pid: int | None = None) -> None:
     """Set up a pool process: progress queue, SIGTERM as a clean stop, Ctrl-C left to the
     driver, death with the driver (``driver_pid``, the process that started this one), and
