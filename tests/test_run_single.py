@@ -379,3 +379,18 @@ def test_a_pool_worker_imports_cma_without_plotting_or_statistics():
     assert r.returncode == 0, r.stderr
     assert r.stdout.split() == ["[]", "True", "0.333333"]
     assert r.stderr == ""  # no warning from cma about its plots
+
+
+def test_a_process_holding_an_unclosable_log_begins_no_other_run(tmp_path, monkeypatch):
+    # after a full disk spoilt HDF5 in this process (a log it could not close), a run given to
+    # it fails at once with the disk's line instead of meeting HDF5's own errors
+    from foilmap.store import runlog
+
+    st, run, folder = prepared(tmp_path)
+    monkeypatch.setattr(runlog, "UNCLOSED", [(object(), (), "file write failed: errno = 28, "
+                                              "error message = 'No space left on device'")])
+    with pytest.raises(OSError, match="could not be closed after the disk refused a write"):
+        execute_run(st, run, folder.path)
+    assert not folder.log_path(run.run_id).exists()  # no log begun
+    s = worker(st, run.run_id, str(folder.path))
+    assert s["state"] == "failed" and s["error"].startswith("no space left on device; free space")
