@@ -901,9 +901,9 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def entry() -> None:
-    """The ``foilmap`` command: :func:`main`, then leave with its exit code (h5py's messages
-    about a file whose writes the disk refused dropped: the failure has its one line).  A process that
-    holds a run log HDF5 could not close (a full disk) leaves without collecting it
+    """The ``foilmap`` command: :func:`main`, then leave with its exit code.  h5py's messages
+    about a file whose writes the disk refused are dropped (the failure has its one line), and a
+    process that holds a run log HDF5 could not close (a full disk) leaves without collecting it
     (:func:`~foilmap.store.runlog.leave_if_unclosed`): collecting it would crash the process."""
     from foilmap.store.runlog import leave_if_unclosed, quiet_refused_writes
 

@@ -92,10 +92,9 @@ class StudyResults:
         try:
             r = self.study.run(run_id)
         except KeyError:
-            pass
-        else:
-            return self._result(r, self._folder.read_index().get(run_id, {}))
-        raise KeyError(f"no run {run_id!r}; runs: {', '.join(r.run_id for r in self.study.runs())}")
+            raise KeyError(f"no run {run_id!r}; runs: "
+                           f"{', '.join(r.run_id for r in self.study.runs())}") from None
+        return self._result(r, self._folder.read_index().get(run_id, {}))
 
     def best(self) -> RunResult:
         """The run whose best feasible design has the lowest objective (single-objective

@@ -80,11 +80,12 @@ def damage_lines(st: dict) -> list[str]:
 LE_RADIUS_FLOOR = 0.002
 
 
-def best_shapes(out: Path, status: dict | None = None) -> list[tuple[str, dict]]:
+def best_shapes(out, status: dict | None = None) -> list[tuple[str, dict]]:
     """(run id, best shape) for every run with a feasible design (see
-    :meth:`StudyFolder.best_shape`).  A finished run's comes from the index (no log opened);
-    ``status`` is the folder's :meth:`StudyFolder.status` when the caller has it already."""
-    folder = StudyFolder(out)
+    :meth:`StudyFolder.best_shape`) of a study folder (a path or a :class:`StudyFolder`).  A
+    finished run's comes from the index (no log opened); ``status`` is the folder's
+    :meth:`StudyFolder.status` when the caller has it already."""
+    folder = out if isinstance(out, StudyFolder) else StudyFolder(out)
     st = status if status is not None else folder.status()
     found = []
     for row in st["runs"]:
@@ -101,8 +102,12 @@ def sharp_nose_warnings(out: Path, floor: float = LE_RADIUS_FLOOR,
                         status: dict | None = None) -> list[str]:
     """One warning line per run whose best feasible design has a leading-edge radius below
     ``floor`` (chords), naming the study key that prevents it."""
+    return _nose_lines(best_shapes(out, status), floor)
+
+
+def _nose_lines(shapes, floor: float) -> list[str]:
     lines = []
-    for run_id, shape in best_shapes(out, status):
+    for run_id, shape in shapes:
         radius = shape["le_radius"]
         if radius < floor:
             lines.append(f"warning: the best design of run {run_id} has a leading-edge radius "
@@ -120,11 +125,16 @@ ON_FLOOR = 0.05
 def floor_warnings(out: Path, status: dict | None = None) -> list[str]:
     """One warning line per run whose best feasible design sits on the local-thickness floor
     (``constraints.min_local_thickness``), naming where and the study keys that govern it."""
-    t0 = float(StudyFolder(out).study.constraints.get("min_local_thickness", 0.0))
+    folder = StudyFolder(out)
+    return _floor_lines(folder, best_shapes(folder, status))
+
+
+def _floor_lines(folder: StudyFolder, shapes) -> list[str]:
+    t0 = float(folder.study.constraints.get("min_local_thickness", 0.0))
     if t0 <= 0.0:
         return []
     lines = []
-    for run_id, shape in best_shapes(out, status):
+    for run_id, shape in shapes:
         margin, x = shape["floor_margin"], shape["floor_x"]
         if margin < ON_FLOOR * t0:
             lines.append(f"warning: the best design of run {run_id} sits on the local-thickness "
@@ -138,8 +148,9 @@ def floor_warnings(out: Path, status: dict | None = None) -> list[str]:
 def design_warnings(out: Path, status: dict | None = None) -> list[str]:
     """Every warning about the best designs of a study folder: needle noses and sections on
     the local-thickness floor (``status``: the folder's status, when the caller has it)."""
-    st = status if status is not None else StudyFolder(out).status()
-    return sharp_nose_warnings(out, status=st) + floor_warnings(out, status=st)
+    folder = StudyFolder(out)
+    shapes = best_shapes(folder, status)
+    return _nose_lines(shapes, LE_RADIUS_FLOOR) + _floor_lines(folder, shapes)
 
 
 #: the colours of the runs, in the study's order (matplotlib's tab10, repeating)

@@ -138,9 +138,8 @@ class StudyFolder:
         try:
             return self.study.run(run_id)
         except KeyError:
-            pass
-        raise InputError(f"no run {run_id!r} in {str(self.path)!r} "
-                         f"(runs: {', '.join(r.run_id for r in self.study.runs())})")
+            raise InputError(f"no run {run_id!r} in {str(self.path)!r} (runs: "
+                             f"{', '.join(r.run_id for r in self.study.runs())})") from None
 
     # --- the index -----------------------------------------------------------------------
 
